@@ -1,0 +1,10 @@
+import { defineConfig } from "vitest/config";
+import { shared } from "./vitest.shared.js";
+
+export default defineConfig({
+  test: {
+    ...shared,
+    include: ["test/**/*.test.ts"],
+    exclude: ["test/**/*.system.test.ts", "node_modules/**"],
+  },
+});
