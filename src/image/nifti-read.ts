@@ -108,18 +108,6 @@ export function parseNifti(bytes: Uint8Array, name: string, options: ReadNiftiOp
   const needed = info.voxOffset + dataBytes;
   let whole: Uint8Array;
   if (gz) {
-    if (bytes.length >= 18) {
-      const isize =
-        (bytes[bytes.length - 4] | (bytes[bytes.length - 3] << 8) | (bytes[bytes.length - 2] << 16)) +
-        bytes[bytes.length - 1] * 16777216;
-      if (needed + GZIP_MARGIN_BYTES < 2 ** 32 && isize > needed + GZIP_MARGIN_BYTES) {
-        throw new CoxaError(
-          "GZIP_BOMB",
-          `gzip stream declares ${isize} bytes but the header needs only ${needed}; refusing to inflate`,
-          name,
-        );
-      }
-    }
     try {
       whole = gunzipSync(bytes, { maxOutputLength: needed + GZIP_MARGIN_BYTES });
     } catch (err) {
