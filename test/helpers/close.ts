@@ -37,3 +37,8 @@ export function maxAbsDifference(a: Numeric, b: Numeric): number {
   for (let i = 0; i < x.length; i++) d = Math.max(d, Math.abs(x[i] - y[i]));
   return d;
 }
+
+/** Flatten nested rows into one list. */
+export function flat(rows: readonly (readonly number[])[]): number[] {
+  return rows.flatMap((r) => [...r]);
+}

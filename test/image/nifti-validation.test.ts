@@ -22,7 +22,7 @@ function goodBytes(): Uint8Array {
 
 function patched(
   name: string,
-  edit: (view: DataView, bytes: Uint8Array) => Uint8Array | undefined,
+  edit: (view: DataView, bytes: Uint8Array) => Uint8Array | undefined | void,
   gz = false,
 ): string {
   const bytes = goodBytes();
