@@ -1,0 +1,159 @@
+/**
+ * Fixed-image sample sets for the metrics, and robust intensity ranges.
+ *
+ * A sample set is drawn once per pyramid level and reused for every evaluation: a seeded
+ * random subset (without replacement, Floyd's algorithm) of the fixed-mask voxels with finite
+ * values, kept in storage order (so that successive samples map to nearby moving voxels,
+ * which is kind to caches). For each sample the WORLD coordinates (mm) of its voxel centre
+ * and its fixed value are stored; the metrics map the world points through the
+ * fixed-to-moving transform on each evaluation.
+ *
+ * Robust range: the pLow and pHigh percentiles (default 0.5 % and 99.5 %) of the finite values
+ * inside the mask, with numpy's default "linear" interpolation between order statistics, on at
+ * most `maxValues` voxels taken at a regular stride (exact below that size).
+ */
+import { CoxaError } from "../common/errors.js";
+import { Rng } from "../common/random.js";
+import type { VoxelArray } from "../image/datatypes.js";
+import type { Volume } from "../image/volume.js";
+
+/** Samples of the fixed image. */
+export interface SampleSet {
+  /** Number of samples. */
+  count: number;
+  /** World coordinates, x y z per sample (mm). */
+  world: Float64Array;
+  /** Fixed intensities at the samples. */
+  values: Float32Array;
+  /** Flat voxel index of each sample on the fixed grid. */
+  voxel: Int32Array;
+  /** Number of voxels the samples were drawn from (mask voxels with finite values). */
+  candidates: number;
+}
+
+/** Options of createSampleSet. */
+export interface SampleOptions {
+  /** Voxels allowed (nonzero); default all. */
+  mask?: Uint8Array;
+  /** Number of samples; default 50,000; at least the candidates -> all of them. */
+  samples?: number;
+  /** Seed of the random choice; default 1. */
+  seed?: number;
+}
+
+/** Default number of samples per level. */
+export const DEFAULT_SAMPLES = 50_000;
+
+/**
+ * Draw the fixed sample set.
+ * @param fixed - fixed image (a pyramid level)
+ * @param options - mask, samples, seed
+ * @throws CoxaError BAD_DIMS when the mask size differs, NO_OVERLAP when no voxel is available
+ */
+export function createSampleSet(fixed: Volume, options: SampleOptions = {}): SampleSet {
+  const { mask } = options;
+  const data = fixed.data;
+  const n = fixed.count;
+  if (mask && mask.length !== n) {
+    throw new CoxaError("BAD_DIMS", `fixed mask has ${mask.length} voxels, the fixed image ${n}`);
+  }
+  let candidates = 0;
+  for (let q = 0; q < n; q++) if (mask?.[q] !== 0 && data[q] === data[q]) candidates++;
+  if (candidates === 0) throw new CoxaError("NO_OVERLAP", "the fixed mask leaves no voxel to sample");
+  const wanted = Math.max(1, Math.floor(options.samples ?? DEFAULT_SAMPLES));
+  const count = Math.min(wanted, candidates);
+  // Ranks (0..candidates-1) of the chosen voxels, ascending.
+  let ranks: Int32Array | undefined;
+  if (count < candidates) {
+    const rng = new Rng(options.seed ?? 1);
+    const chosen = new Set<number>();
+    // Floyd's algorithm: for j = N-k .. N-1 pick t in [0, j]; take t, or j if t was taken.
+    for (let j = candidates - count; j < candidates; j++) {
+      const t = rng.int(j + 1);
+      chosen.add(chosen.has(t) ? j : t);
+    }
+    ranks = Int32Array.from(chosen).sort();
+  }
+  const voxel = new Int32Array(count);
+  let rank = 0;
+  let next = 0;
+  for (let q = 0; q < n && next < count; q++) {
+    if ((mask && mask[q] === 0) || data[q] !== data[q]) continue;
+    if (!ranks || ranks[next] === rank) voxel[next++] = q;
+    rank++;
+  }
+  const world = new Float64Array(3 * count);
+  const values = new Float32Array(count);
+  const [nx, ny] = fixed.dims;
+  const m = fixed.indexToWorld;
+  for (let s = 0; s < count; s++) {
+    const q = voxel[s];
+    const k = Math.floor(q / (nx * ny));
+    const rem = q - k * nx * ny;
+    const j = Math.floor(rem / nx);
+    const i = rem - j * nx;
+    world[3 * s] = m[0] * i + m[1] * j + m[2] * k + m[3];
+    world[3 * s + 1] = m[4] * i + m[5] * j + m[6] * k + m[7];
+    world[3 * s + 2] = m[8] * i + m[9] * j + m[10] * k + m[11];
+    values[s] = data[q];
+  }
+  return { count, world, values, voxel, candidates };
+}
+
+/**
+ * Percentile of finite values with numpy's "linear" method (position p/100 * (n - 1)).
+ * @param values - sorted or unsorted values (copied, not modified)
+ * @param percent - 0..100
+ */
+export function percentile(values: ArrayLike<number>, percent: number): number {
+  const a = Float64Array.from(values).filter((v) => v === v);
+  if (a.length === 0) return Number.NaN;
+  a.sort();
+  const pos = (Math.min(100, Math.max(0, percent)) / 100) * (a.length - 1);
+  const lo = Math.floor(pos);
+  const hi = Math.min(a.length - 1, lo + 1);
+  return a[lo] + (pos - lo) * (a[hi] - a[lo]);
+}
+
+/**
+ * Robust intensity range: [pLow, pHigh] percentiles of finite values inside `mask`.
+ * @param data - voxel values
+ * @param mask - allowed voxels (nonzero); default all
+ * @param percents - [low, high] in percent; default [0.5, 99.5]
+ * @param maxValues - at most this many voxels are used (regular stride); default 200,000
+ * @returns [lo, hi] with hi > lo (widened by 1 unit for a constant image)
+ * @throws CoxaError NO_OVERLAP when there is no finite value
+ */
+export function robustRange(
+  data: VoxelArray,
+  mask?: Uint8Array,
+  percents: readonly [number, number] = [0.5, 99.5],
+  maxValues = 200_000,
+): [number, number] {
+  let n = 0;
+  for (let q = 0; q < data.length; q++) if (mask?.[q] !== 0 && data[q] === data[q]) n++;
+  if (n === 0) throw new CoxaError("NO_OVERLAP", "no finite voxel inside the mask");
+  const stride = Math.max(1, Math.ceil(n / maxValues));
+  const picked = new Float64Array(Math.ceil(n / stride));
+  let c = 0;
+  let seen = 0;
+  for (let q = 0; q < data.length; q++) {
+    if ((mask && mask[q] === 0) || data[q] !== data[q]) continue;
+    if (seen++ % stride === 0) picked[c++] = data[q];
+  }
+  const values = picked.subarray(0, c);
+  values.sort();
+  const at = (p: number) => {
+    const pos = (p / 100) * (values.length - 1);
+    const lo = Math.floor(pos);
+    const hi = Math.min(values.length - 1, lo + 1);
+    return values[lo] + (pos - lo) * (values[hi] - values[lo]);
+  };
+  let lo = at(percents[0]);
+  let hi = at(percents[1]);
+  if (!(hi > lo)) {
+    lo -= 0.5;
+    hi += 0.5;
+  }
+  return [lo, hi];
+}
