@@ -20,13 +20,9 @@ function goodBytes(): Uint8Array {
   return encodeNifti(new Volume([4, 3, 2], data, scaling(1, 1, 1)), { datatype: "int16" });
 }
 
-function patched(
-  name: string,
-  edit: (view: DataView, bytes: Uint8Array) => Uint8Array | undefined | void,
-  gz = false,
-): string {
+function patched(name: string, edit: (view: DataView, bytes: Uint8Array) => unknown, gz = false): string {
   const bytes = goodBytes();
-  const out = edit(new DataView(bytes.buffer), bytes) ?? bytes;
+  const out = (edit(new DataView(bytes.buffer), bytes) as Uint8Array | undefined) ?? bytes;
   const path = join(dir, name);
   writeFileSync(path, gz ? gzipSync(out) : out);
   return path;

@@ -1,0 +1,650 @@
+/**
+ * The level-by-level registration driver: pyramid, masks, start, coarse global search,
+ * Powell per level, inverse-consistency check. Pure computation on volumes in memory; file
+ * input and output live in align.ts.
+ *
+ * Conventions (design.md): the result maps FIXED world mm -> MOVING world mm. Parameters are
+ * those of src/geometry/transform-model.ts about `centerMm` (the fixed body centroid), scaled
+ * so that one unit of any parameter moves points at the body's RMS radius by about 1 mm.
+ *
+ * Sampling direction: a metric samples one image (its mask, restricted to the part that maps
+ * into the other image's field of view under the current estimate, plus a margin) and
+ * interpolates the other. Per level the driver samples the image whose restricted mask is
+ * smaller in mm^3 — usually the fixed CT, but a small-field MR around one hip is sampled
+ * itself, so that every sample can count. The cost is then evaluated through the inverse of
+ * the fixed->moving matrix. The inverse-consistency check repeats the finest level sampling the
+ * other image and reports the largest disagreement of the two answers over the implant region
+ * (the metal's bounding box grown by 30 mm; the exact maximum, since |A x - B x| is convex).
+ *
+ * Model schedule: the search and the first level are rigid; the requested model (similarity,
+ * affine) takes over from the second level (common practice, no source).
+ */
+import { CoxaError } from "../common/errors.js";
+import type { ProgressFn } from "../common/progress.js";
+import type { LandmarkPairs } from "../geometry/landmarks.js";
+import { identity, inverse, invertAffine, type Mat4 } from "../geometry/mat4.js";
+import {
+  convertParameters,
+  matrixToParameters,
+  parameterScales,
+  parametersToMatrix,
+  type TransformModel,
+} from "../geometry/transform-model.js";
+import type { Modality } from "../image/modality.js";
+import type { Volume } from "../image/volume.js";
+import { type ImageMasks, prepareLevelMasks } from "../masks/level-masks.js";
+import { createMetric, type Metric, type MetricKind } from "../metrics/metric.js";
+import { powell } from "../optimize/powell.js";
+import { buildPyramid, type Pyramid } from "../pyramid/pyramid.js";
+import { type InitialTransform, type InitMethod, initialTransform } from "./initialise.js";
+import { boxCorners, maskBoundsWorld, maskInsideOther, maskMoments, maxDisplacementMm } from "./regions.js";
+import { scanTranslations } from "./search.js";
+
+/** Registration options; defaults in REGISTER_DEFAULTS. */
+export interface RegisterOptions {
+  model?: TransformModel;
+  metric?: MetricKind;
+  /** Sampling step per level, coarse to fine (mm). */
+  levelsMm?: readonly number[];
+  /** Exclude CT metal and its margin from the metric (default true). */
+  metalMask?: boolean;
+  metalHu?: number;
+  metalMarginMm?: number;
+  /** Modality override; detected from intensities when absent. */
+  fixedModality?: Modality;
+  movingModality?: Modality;
+  /** User masks (any nonzero voxel = use), on their images' own grids and worlds. */
+  fixedMask?: Volume;
+  fixedMaskName?: string;
+  movingMask?: Volume;
+  movingMaskName?: string;
+  /** Start method (default centroid); ignored when `startMatrix` is given. */
+  init?: InitMethod;
+  /** Explicit start transform (fixed -> moving), e.g. a stress trial's perturbed pose. */
+  startMatrix?: Mat4;
+  /** Landmark pairs for `init: "landmarks"`. */
+  landmarks?: LandmarkPairs;
+  /** Coarse translation scan + refinement on the first level (default true). */
+  globalSearch?: boolean;
+  /** Samples per level (default by level: 4000 / 12000 / 30000 ...). */
+  samplesPerLevel?: readonly number[];
+  /** Histogram bins for mi / nmi. */
+  bins?: number;
+  /** Repeat the finest level sampling the other image and compare (default true). */
+  inverseConsistency?: boolean;
+  seed?: number;
+  onProgress?: ProgressFn;
+}
+
+export const REGISTER_DEFAULTS = {
+  model: "rigid" as TransformModel,
+  metric: "mi" as MetricKind,
+  levelsMm: [8, 4, 2] as readonly number[],
+  metalMask: true,
+  metalHu: 2500,
+  metalMarginMm: 5,
+  init: "centroid" as InitMethod,
+  globalSearch: true,
+  bins: 32,
+  inverseConsistency: true,
+  seed: 1,
+  /** Samples by level index from the coarsest (common practice, no source; tuned on the phantom). */
+  samples: [4000, 12000, 30000, 40000],
+  /** Powell budget per level (evaluations). */
+  maxEvaluationsPerLevel: 1500,
+  /** Margin around the other image's box when restricting the sampled mask (mm). */
+  roiMarginMm: 10,
+  /** Translation scan: grid (mm), candidates kept, their separation (mm), samples. */
+  scanGridMm: 16,
+  scanKeep: 5,
+  scanSeparationMm: 30,
+  scanSamples: 1500,
+  /** Implant region for inverse consistency: metal box grown by this (mm). */
+  implantRegionMarginMm: 30,
+};
+
+/** What one pyramid level did. */
+export interface LevelRecord {
+  stepMm: number;
+  model: TransformModel;
+  /** Which image the metric sampled. */
+  sampled: "fixed" | "moving";
+  samples: number;
+  evaluations: number;
+  iterations: number;
+  converged: boolean;
+  reason: string;
+  /** Similarity (MI nats, NMI, mean LNCC^2: higher is better) at the level's start and end. */
+  startSimilarity: number;
+  finalSimilarity: number;
+  overlap: number;
+  seconds: number;
+  /** Best similarity so far, after each evaluation (at most ~200 points). */
+  trace: number[];
+}
+
+/** What the coarse search did. */
+export interface SearchRecord {
+  evaluated: number;
+  refined: number;
+  /** Costs (lower better) of the refined candidates, best first. */
+  refinedCosts: number[];
+  /** Distance (mm, at the moving reference point) between the best and the start's refinement. */
+  movedMm: number;
+  /** The runner-up's cost gap to the best and its distance (mm), for ambiguity checks. */
+  runnerUpGap: number | null;
+  runnerUpDistanceMm: number | null;
+  seconds: number;
+}
+
+/** Outcome of registerImages. */
+export interface RegistrationResult {
+  model: TransformModel;
+  metric: MetricKind;
+  /** Fixed world -> moving world. */
+  matrix: Mat4;
+  inverse: Mat4;
+  parameters: Float64Array;
+  centerMm: [number, number, number];
+  init: InitialTransform;
+  startMatrix: Mat4;
+  levels: LevelRecord[];
+  search: SearchRecord | null;
+  /** Similarity on the finest level at the start and at the end (higher is better). */
+  metricStart: number;
+  metricFinal: number;
+  /** Share of the finest-level samples that counted at the end. */
+  overlapFraction: number;
+  /** Largest disagreement (mm) between the forward answer and the one sampling the other image. */
+  inverseConsistencyMm: number | null;
+  /** The reverse answer (fixed -> moving) when computed. */
+  reverseMatrix: Mat4 | null;
+  /** World box of the implant region used for inverse consistency (null without metal). */
+  implantBoxMm: { min: number[]; max: number[] } | null;
+  fixedMasks: ImageMasks;
+  movingMasks: ImageMasks;
+  fixedPyramid: Pyramid;
+  movingPyramid: Pyramid;
+  timings: { pyramid: number; masks: number; search: number; optimise: number; inverse: number };
+}
+
+const seconds = (t0: number) => (performance.now() - t0) / 1000;
+
+/**
+ * Register `moving` to `fixed`.
+ * @param fixed - fixed image (usually the CT), any datatype, world RAS mm
+ * @param moving - moving image (usually the MR)
+ * @param options - see RegisterOptions
+ * @returns the fixed->moving transform and what each stage did
+ * @throws CoxaError BAD_ARGUMENT for bad options, NO_OVERLAP when the images cannot overlap,
+ *   BAD_MASK for an empty user mask
+ */
+export function registerImages(
+  fixed: Volume,
+  moving: Volume,
+  options: RegisterOptions = {},
+): RegistrationResult {
+  const o = { ...REGISTER_DEFAULTS, ...stripUndefined(options) };
+  const levelsMm = [...o.levelsMm];
+  if (levelsMm.length === 0) throw new CoxaError("BAD_ARGUMENT", "at least one pyramid level is needed");
+  const progress = options.onProgress;
+  const timings = { pyramid: 0, masks: 0, search: 0, optimise: 0, inverse: 0 };
+
+  let t0 = performance.now();
+  progress?.({ stage: "pyramid", fraction: 0 });
+  const fPyr = buildPyramid(fixed, { levelsMm });
+  const mPyr = buildPyramid(moving, { levelsMm });
+  timings.pyramid = seconds(t0);
+
+  t0 = performance.now();
+  progress?.({ stage: "masks", fraction: 0 });
+  const fMasks = prepareLevelMasks(fixed, fPyr, {
+    modality: o.fixedModality,
+    metalMask: o.metalMask,
+    metalHu: o.metalHu,
+    metalMarginMm: o.metalMarginMm,
+    userMask: o.fixedMask,
+    userMaskName: o.fixedMaskName,
+  });
+  const mMasks = prepareLevelMasks(moving, mPyr, {
+    modality: o.movingModality,
+    metalMask: o.metalMask,
+    metalHu: o.metalHu,
+    metalMarginMm: o.metalMarginMm,
+    userMask: o.movingMask,
+    userMaskName: o.movingMaskName,
+  });
+  timings.masks = seconds(t0);
+  const L = levelsMm.length;
+  const finest = L - 1;
+  for (const [name, masks] of [
+    ["fixed", fMasks],
+    ["moving", mMasks],
+  ] as const) {
+    if (masks.levels[finest].includeVoxels === 0) {
+      throw new CoxaError("NO_OVERLAP", `the ${name} image has no voxels left to register after masking`);
+    }
+  }
+
+  // Body moments on the coarsest level for the start and the parameter centre.
+  const fLevel0 = fPyr.levels[0].volume;
+  const mLevel0 = mPyr.levels[0].volume;
+  const fBody0 = fMasks.levels[0].body ?? fMasks.levels[0].include;
+  const mBody0 = mMasks.levels[0].body ?? mMasks.levels[0].include;
+  const fMoments = maskMoments(fBody0, fLevel0);
+  const mMoments = maskMoments(mBody0, mLevel0);
+  const init = options.startMatrix
+    ? {
+        method: o.init,
+        matrix: new Float64Array(options.startMatrix),
+        note: "start transform given by the caller",
+      }
+    : initialTransform(o.init, {
+        fixedBody: fMoments,
+        movingBody: mMoments,
+        landmarks: o.landmarks,
+        model: o.model,
+      });
+  const startMatrix = new Float64Array(init.matrix);
+  {
+    // The fields of view must overlap at the start (a header start between unrelated scanner
+    // coordinates does not): the coarse search looks around the start, not everywhere.
+    const scratch = new Uint8Array(fBody0.length);
+    if (maskInsideOther(scratch, fBody0, fLevel0, mLevel0, startMatrix, 0) === 0) {
+      throw new CoxaError(
+        "NO_OVERLAP",
+        `the fields of view do not overlap at the start transform (init ${init.method}); try --init centroid`,
+      );
+    }
+  }
+
+  const centerMm: [number, number, number] = fMoments.count > 0 ? fMoments.centroidMm : fixed.centerWorld();
+  const radiusMm = Math.max(20, fMoments.radiusMm || 80);
+  const rigidScales = parameterScales("rigid", radiusMm);
+
+  let model: TransformModel = "rigid";
+  let params = matrixToParameters("rigid", init.matrix, centerMm);
+  const work = new Float64Array(16);
+  const workInv = new Float64Array(16);
+
+  /** A cost over parameter vectors for a metric sampling `sampled`. */
+  const makeObjective = (
+    metric: Metric,
+    sampled: "fixed" | "moving",
+    mdl: TransformModel,
+    trace?: number[],
+  ) => {
+    let best = Infinity;
+    let count = 0;
+    return (x: Float64Array) => {
+      parametersToMatrix(work, mdl, x, centerMm);
+      let c: number;
+      if (sampled === "fixed") c = metric.evaluate(work);
+      else {
+        invertAffine(workInv, work);
+        c = metric.evaluate(workInv);
+      }
+      count++;
+      if (c < best) best = c;
+      if (trace && (count < 200 || count % 4 === 0)) trace.push(-best);
+      return c;
+    };
+  };
+
+  const buildMetric = (
+    level: number,
+    sampled: "fixed" | "moving",
+    current: Mat4,
+    samples: number,
+    seed: number,
+  ) => {
+    const fV = fPyr.levels[level].volume;
+    const mV = mPyr.levels[level].volume;
+    const fInc = fMasks.levels[level].include;
+    const mInc = mMasks.levels[level].include;
+    if (sampled === "fixed") {
+      const roi = new Uint8Array(fInc.length);
+      const n = maskInsideOther(roi, fInc, fV, mV, current, o.roiMarginMm);
+      if (n === 0) throw new CoxaError("NO_OVERLAP", "the images do not overlap at the start transform");
+      return createMetric(o.metric, {
+        fixed: fV,
+        moving: mV,
+        fixedMask: roi,
+        movingMask: mInc,
+        samples,
+        seed,
+        bins: o.bins,
+      });
+    }
+    const roi = new Uint8Array(mInc.length);
+    const n = maskInsideOther(roi, mInc, mV, fV, inverse(current), o.roiMarginMm);
+    if (n === 0) throw new CoxaError("NO_OVERLAP", "the images do not overlap at the start transform");
+    return createMetric(o.metric, {
+      fixed: mV,
+      moving: fV,
+      fixedMask: roi,
+      movingMask: fInc,
+      samples,
+      seed,
+      bins: o.bins,
+    });
+  };
+
+  /** Which image to sample on a level: the one whose mask inside the other's view is smaller. */
+  const chooseSampled = (level: number, current: Mat4): "fixed" | "moving" => {
+    const fV = fPyr.levels[level].volume;
+    const mV = mPyr.levels[level].volume;
+    const fInc = fMasks.levels[level].include;
+    const mInc = mMasks.levels[level].include;
+    const scratchF = new Uint8Array(fInc.length);
+    const scratchM = new Uint8Array(mInc.length);
+    const nf = maskInsideOther(scratchF, fInc, fV, mV, current, o.roiMarginMm) * voxelVolume(fV);
+    const nm = maskInsideOther(scratchM, mInc, mV, fV, inverse(current), o.roiMarginMm) * voxelVolume(mV);
+    return nm < 0.7 * nf ? "moving" : "fixed";
+  };
+
+  const current = identity();
+  parametersToMatrix(current, "rigid", params, centerMm);
+
+  // --- Coarse global search on level 0 ---
+  let search: SearchRecord | null = null;
+  if (o.globalSearch) {
+    t0 = performance.now();
+    progress?.({ stage: `search (${levelsMm[0]} mm)`, fraction: 0, level: 0 });
+    const sampled = mMoments.volumeMm3 < 0.7 * fMoments.volumeMm3 ? "moving" : "fixed";
+    const scanMetric =
+      sampled === "fixed"
+        ? createMetric(o.metric, {
+            fixed: fLevel0,
+            moving: mLevel0,
+            fixedMask: fMasks.levels[0].include,
+            movingMask: mMasks.levels[0].include,
+            samples: o.scanSamples,
+            seed: o.seed,
+            bins: o.bins,
+          })
+        : createMetric(o.metric, {
+            fixed: mLevel0,
+            moving: fLevel0,
+            fixedMask: mMasks.levels[0].include,
+            movingMask: fMasks.levels[0].include,
+            samples: o.scanSamples,
+            seed: o.seed,
+            bins: o.bins,
+          });
+    const scanInv = new Float64Array(16);
+    const scan = scanTranslations({
+      start: current,
+      cost: (m) =>
+        sampled === "fixed" ? scanMetric.evaluate(m) : scanMetric.evaluate(invertAffine(scanInv, m)),
+      fixedBody: fBody0,
+      fixedGrid: fLevel0,
+      movingPointMm: mMoments.centroidMm,
+      gridMm: Math.max(o.scanGridMm, 2 * levelsMm[0]),
+      keep: o.scanKeep,
+      separationMm: o.scanSeparationMm,
+      seed: o.seed,
+    });
+    // Refine each candidate with Powell on level 0 (a richer sample set, the same for all).
+    const refineMetric =
+      sampled === "fixed"
+        ? createMetric(o.metric, {
+            fixed: fLevel0,
+            moving: mLevel0,
+            fixedMask: fMasks.levels[0].include,
+            movingMask: mMasks.levels[0].include,
+            samples: o.samples[0],
+            seed: o.seed + 101,
+            bins: o.bins,
+          })
+        : createMetric(o.metric, {
+            fixed: mLevel0,
+            moving: fLevel0,
+            fixedMask: mMasks.levels[0].include,
+            movingMask: fMasks.levels[0].include,
+            samples: o.samples[0],
+            seed: o.seed + 101,
+            bins: o.bins,
+          });
+    const objective = makeObjective(refineMetric, sampled, "rigid");
+    const refined: { x: Float64Array; value: number; isStart: boolean }[] = [];
+    for (let c = 0; c < scan.candidates.length; c++) {
+      const cand = scan.candidates[c];
+      const x0 = matrixToParameters("rigid", cand.matrix, centerMm);
+      const r = powell(objective, x0, {
+        scales: scaleBy(rigidScales, levelsMm[0]),
+        maxEvaluations: 400,
+        lineTolerance: 0.05,
+        tolerances: { x: 0.05, fRelative: 1e-5 },
+      });
+      refined.push({ x: r.x, value: r.value, isStart: cand.isStart });
+      progress?.({
+        stage: `search (${levelsMm[0]} mm)`,
+        fraction: (c + 1) / scan.candidates.length,
+        level: 0,
+      });
+    }
+    refined.sort((a, b) => a.value - b.value);
+    const best = refined[0];
+    const startRef = refined.find((r) => r.isStart)!;
+    const bestM = parametersToMatrix(new Float64Array(16), "rigid", best.x, centerMm);
+    const startM = parametersToMatrix(new Float64Array(16), "rigid", startRef.x, centerMm);
+    const q = mMoments.centroidMm;
+    const pBest = invertPoint(bestM, q);
+    const pStart = invertPoint(startM, q);
+    let runnerUpGap: number | null = null;
+    let runnerUpDistanceMm: number | null = null;
+    if (refined.length > 1) {
+      const second = refined[1];
+      const secondM = parametersToMatrix(new Float64Array(16), "rigid", second.x, centerMm);
+      runnerUpGap = second.value - best.value;
+      const p2 = invertPoint(secondM, q);
+      runnerUpDistanceMm = Math.hypot(p2[0] - pBest[0], p2[1] - pBest[1], p2[2] - pBest[2]);
+    }
+    params = best.x;
+    parametersToMatrix(current, "rigid", params, centerMm);
+    search = {
+      evaluated: scan.evaluated,
+      refined: refined.length,
+      refinedCosts: refined.map((r) => r.value),
+      movedMm: Math.hypot(pBest[0] - pStart[0], pBest[1] - pStart[1], pBest[2] - pStart[2]),
+      runnerUpGap,
+      runnerUpDistanceMm,
+      seconds: seconds(t0),
+    };
+    timings.search = search.seconds;
+  }
+
+  // --- Level by level ---
+  t0 = performance.now();
+  const levels: LevelRecord[] = [];
+  let finestMetric: Metric | undefined;
+  let finestSampled: "fixed" | "moving" = "fixed";
+  for (let l = 0; l < L; l++) {
+    const tl = performance.now();
+    const levelModel: TransformModel = l === 0 ? "rigid" : o.model;
+    if (levelModel !== model) {
+      params = convertParameters(model, params, levelModel, centerMm);
+      model = levelModel;
+    }
+    const sampled = chooseSampled(l, current);
+    const samples = o.samples[Math.min(l, o.samples.length - 1)];
+    const metric = buildMetric(l, sampled, current, samples, o.seed + 17 * (l + 1));
+    const trace: number[] = [];
+    const objective = makeObjective(metric, sampled, model, trace);
+    const startValue = objective(params);
+    const stageName = `level ${l + 1}/${L} (${levelsMm[l]} mm)`;
+    const budget = o.maxEvaluationsPerLevel * (model === "affine" ? 2 : 1);
+    const r = powell(objective, params, {
+      scales: scaleBy(parameterScales(model, radiusMm), levelsMm[l] / 2),
+      maxEvaluations: budget,
+      lineTolerance: 0.02,
+      tolerances: { x: 0.01, fRelative: 1e-6 },
+      onIteration: (info) => {
+        progress?.({
+          stage: stageName,
+          fraction: Math.min(0.99, info.evaluations / budget),
+          level: l,
+          iteration: info.evaluations,
+          metric: -info.bestValue,
+        });
+      },
+    });
+    params = r.x;
+    parametersToMatrix(current, model, params, centerMm);
+    // Re-evaluate at the answer so that `overlap` belongs to it.
+    const finalValue = objective(params);
+    levels.push({
+      stepMm: levelsMm[l],
+      model,
+      sampled,
+      samples: metric.sampleCount,
+      evaluations: r.evaluations,
+      iterations: r.iterations,
+      converged: r.converged,
+      reason: r.reason,
+      startSimilarity: -startValue,
+      finalSimilarity: -finalValue,
+      overlap: metric.overlap,
+      seconds: seconds(tl),
+      trace: thin(trace, 200),
+    });
+    progress?.({ stage: stageName, fraction: 1, level: l, metric: -finalValue });
+    if (l === finest) {
+      finestMetric = metric;
+      finestSampled = sampled;
+    }
+  }
+  timings.optimise = seconds(t0);
+
+  // Similarity at the start, measured with the finest metric.
+  const finalMatrix = new Float64Array(current);
+  const metricAt = (m: Mat4) =>
+    -(finestSampled === "fixed" ? finestMetric!.evaluate(m) : finestMetric!.evaluate(inverse(m)));
+  const metricStart = metricAt(startMatrix);
+  const metricFinal = metricAt(finalMatrix);
+  const overlapFraction = finestMetric!.overlap;
+
+  // --- Inverse consistency: the finest level again, sampling the other image ---
+  let inverseConsistencyMm: number | null = null;
+  let reverseMatrix: Mat4 | null = null;
+  const metalLevel = fMasks.levels[finest].excluded ?? mMasks.levels[finest].excluded;
+  const metalGrid = fMasks.levels[finest].excluded ? fPyr.levels[finest].volume : mPyr.levels[finest].volume;
+  let implantBoxMm: { min: number[]; max: number[] } | null = null;
+  if (metalLevel) {
+    const box = maskBoundsWorld(metalLevel, metalGrid);
+    if (box) {
+      if (metalGrid === fPyr.levels[finest].volume) implantBoxMm = box;
+      else {
+        // Metal found in the moving image: carry its box corners into fixed space.
+        const inv = inverse(finalMatrix);
+        const corners = boxCorners(box).map((p) => transformPointArr(inv, p));
+        implantBoxMm = {
+          min: [0, 1, 2].map((a) => Math.min(...corners.map((c) => c[a]))),
+          max: [0, 1, 2].map((a) => Math.max(...corners.map((c) => c[a]))),
+        };
+      }
+    }
+  }
+  if (o.inverseConsistency) {
+    t0 = performance.now();
+    const other = finestSampled === "fixed" ? "moving" : "fixed";
+    const stageName = "inverse consistency";
+    progress?.({ stage: stageName, fraction: 0 });
+    let metric: Metric | undefined;
+    try {
+      metric = buildMetric(
+        finest,
+        other,
+        current,
+        o.samples[Math.min(finest, o.samples.length - 1)],
+        o.seed + 991,
+      );
+    } catch (err) {
+      if (!(err instanceof CoxaError && err.code === "NO_OVERLAP")) throw err;
+    }
+    if (metric) {
+      const objective = makeObjective(metric, other, model);
+      const budget = o.maxEvaluationsPerLevel;
+      const r = powell(objective, params, {
+        scales: scaleBy(parameterScales(model, radiusMm), levelsMm[finest] / 2),
+        maxEvaluations: budget,
+        lineTolerance: 0.02,
+        tolerances: { x: 0.01, fRelative: 1e-6 },
+        onIteration: (info) =>
+          progress?.({ stage: stageName, fraction: Math.min(0.99, info.evaluations / budget) }),
+      });
+      reverseMatrix = parametersToMatrix(new Float64Array(16), model, r.x, centerMm);
+      const region = implantBoxMm
+        ? boxCorners(implantBoxMm, o.implantRegionMarginMm)
+        : boxCorners(
+            fMasks.levels[finest].body
+              ? maskBoundsWorld(fMasks.levels[finest].include, fPyr.levels[finest].volume)!
+              : fixed.boundsWorld(false),
+          );
+      inverseConsistencyMm = maxDisplacementMm(finalMatrix, reverseMatrix, region);
+    }
+    timings.inverse = seconds(t0);
+    progress?.({ stage: stageName, fraction: 1 });
+  }
+
+  return {
+    model: o.model,
+    metric: o.metric,
+    matrix: finalMatrix,
+    inverse: inverse(finalMatrix),
+    parameters: model === o.model ? params : convertParameters(model, params, o.model, centerMm),
+    centerMm,
+    init,
+    startMatrix,
+    levels,
+    search,
+    metricStart,
+    metricFinal,
+    overlapFraction,
+    inverseConsistencyMm,
+    reverseMatrix,
+    implantBoxMm,
+    fixedMasks: fMasks,
+    movingMasks: mMasks,
+    fixedPyramid: fPyr,
+    movingPyramid: mPyr,
+    timings,
+  };
+}
+
+function stripUndefined<T extends object>(o: T): Partial<T> {
+  const out: Partial<T> = {};
+  for (const [k, v] of Object.entries(o)) if (v !== undefined) (out as Record<string, unknown>)[k] = v;
+  return out;
+}
+
+function scaleBy(scales: Float64Array, factor: number): Float64Array {
+  const out = new Float64Array(scales.length);
+  for (let i = 0; i < scales.length; i++) out[i] = scales[i] * factor;
+  return out;
+}
+
+function voxelVolume(v: Volume): number {
+  const s = v.spacingMm;
+  return s[0] * s[1] * s[2];
+}
+
+function invertPoint(m: Mat4, p: readonly number[]): [number, number, number] {
+  return transformPointArr(inverse(m), p);
+}
+
+function transformPointArr(m: Mat4, p: readonly number[]): [number, number, number] {
+  return [
+    m[0] * p[0] + m[1] * p[1] + m[2] * p[2] + m[3],
+    m[4] * p[0] + m[5] * p[1] + m[6] * p[2] + m[7],
+    m[8] * p[0] + m[9] * p[1] + m[10] * p[2] + m[11],
+  ];
+}
+
+function thin(values: number[], max: number): number[] {
+  if (values.length <= max) return values;
+  const out: number[] = [];
+  for (let i = 0; i < max; i++) out.push(values[Math.round((i * (values.length - 1)) / (max - 1))]);
+  return out;
+}
