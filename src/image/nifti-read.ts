@@ -13,7 +13,9 @@
  * margin, so a small file cannot expand into gigabytes.
  */
 import { existsSync, readFileSync, statSync } from "node:fs";
-import { gunzipSync, constants as zlibConstants } from "node:zlib";
+import { readFile } from "node:fs/promises";
+import { promisify } from "node:util";
+import { gunzip, gunzipSync, constants as zlibConstants } from "node:zlib";
 import { type NIFTI1, type NIFTI2, readHeader } from "nifti-reader-js";
 import { CoxaError } from "../common/errors.js";
 import { identity, isFiniteMat, type Mat4, relativeDeterminant } from "../geometry/mat4.js";
@@ -69,6 +71,10 @@ export interface NiftiImage {
 
 const HEADER_PROBE_BYTES = 65536;
 const GZIP_MARGIN_BYTES = 1 << 20;
+const gunzipAsync = promisify(gunzip) as (
+  buf: Uint8Array,
+  opts: { maxOutputLength: number },
+) => Promise<Buffer>;
 
 /**
  * Read one 3-D volume from a NIfTI file.
@@ -100,32 +106,84 @@ export function readNifti(path: string, options: ReadNiftiOptions = {}): NiftiIm
  * @param name - file name used in error messages
  */
 export function parseNifti(bytes: Uint8Array, name: string, options: ReadNiftiOptions = {}): NiftiImage {
+  const plan = planRead(bytes, name, options);
+  let whole = bytes;
+  if (plan.gz) {
+    try {
+      whole = gunzipSync(bytes, { maxOutputLength: plan.needed + GZIP_MARGIN_BYTES });
+    } catch (err) {
+      throw inflateError(err, plan.needed, name);
+    }
+  }
+  return finishRead(whole, plan, name, options);
+}
+
+/**
+ * Read one 3-D volume from a NIfTI file, inflating gzip off the main thread (the libuv thread
+ * pool), so that several images can be read at once. Same checks and result as readNifti.
+ */
+export async function readNiftiAsync(path: string, options: ReadNiftiOptions = {}): Promise<NiftiImage> {
+  if (!existsSync(path)) throw new CoxaError("FILE_MISSING", "file does not exist", path);
+  let raw: Buffer;
+  try {
+    if (statSync(path).isDirectory())
+      throw new CoxaError("FILE_UNREADABLE", "is a directory, not an image file", path);
+    raw = await readFile(path);
+  } catch (err) {
+    if (err instanceof CoxaError) throw err;
+    throw new CoxaError(
+      "FILE_UNREADABLE",
+      `cannot be read (${(err as NodeJS.ErrnoException).code ?? "error"})`,
+      path,
+    );
+  }
+  const plan = planRead(raw, path, options);
+  let whole: Uint8Array = raw;
+  if (plan.gz) {
+    try {
+      whole = await gunzipAsync(raw, { maxOutputLength: plan.needed + GZIP_MARGIN_BYTES });
+    } catch (err) {
+      throw inflateError(err, plan.needed, path);
+    }
+  }
+  return finishRead(whole, plan, path, options);
+}
+
+interface ReadPlan {
+  gz: boolean;
+  header: NIFTI1 | NIFTI2;
+  info: NiftiHeaderInfo;
+  nvox3: number;
+  bytesPer: number;
+  /** Bytes the header says the file holds (header + extensions + all voxels). */
+  needed: number;
+}
+
+/** Header checks before any voxel is inflated. */
+function planRead(bytes: Uint8Array, name: string, options: ReadNiftiOptions): ReadPlan {
   const maxVoxels = options.maxVoxels ?? MAX_VOXELS_LIMIT;
   const gz = bytes.length >= 2 && bytes[0] === 0x1f && bytes[1] === 0x8b;
   const head = gz ? inflateHead(bytes, name) : bytes;
   const { header, info, nvox3, bytesPer } = parseHeader(head, name, maxVoxels);
-  const dataBytes = nvox3 * info.frames * bytesPer;
-  const needed = info.voxOffset + dataBytes;
-  let whole: Uint8Array;
-  if (gz) {
-    try {
-      whole = gunzipSync(bytes, { maxOutputLength: needed + GZIP_MARGIN_BYTES });
-    } catch (err) {
-      const code = (err as NodeJS.ErrnoException).code;
-      if (err instanceof RangeError || code === "ERR_BUFFER_TOO_LARGE") {
-        throw new CoxaError(
-          "GZIP_BOMB",
-          `gzip stream inflates beyond the ${needed} bytes the header declares; refusing`,
-          name,
-        );
-      }
-      if (code === "Z_BUF_ERROR")
-        throw new CoxaError("TRUNCATED", "gzip stream ends early (file truncated)", name);
-      throw new CoxaError("NOT_NIFTI", `gzip stream is corrupt (${code ?? "inflate error"})`, name);
-    }
-  } else {
-    whole = bytes;
+  return { gz, header, info, nvox3, bytesPer, needed: info.voxOffset + nvox3 * info.frames * bytesPer };
+}
+
+function inflateError(err: unknown, needed: number, name: string): CoxaError {
+  const code = (err as NodeJS.ErrnoException).code;
+  if (err instanceof RangeError || code === "ERR_BUFFER_TOO_LARGE") {
+    return new CoxaError(
+      "GZIP_BOMB",
+      `gzip stream inflates beyond the ${needed} bytes the header declares; refusing`,
+      name,
+    );
   }
+  if (code === "Z_BUF_ERROR")
+    return new CoxaError("TRUNCATED", "gzip stream ends early (file truncated)", name);
+  return new CoxaError("NOT_NIFTI", `gzip stream is corrupt (${code ?? "inflate error"})`, name);
+}
+
+function finishRead(whole: Uint8Array, plan: ReadPlan, name: string, options: ReadNiftiOptions): NiftiImage {
+  const { header, info, nvox3, bytesPer, needed } = plan;
   if (whole.length < needed) {
     throw new CoxaError(
       "TRUNCATED",

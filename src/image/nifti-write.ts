@@ -10,6 +10,7 @@
 import { gzipSync } from "node:zlib";
 import { writeFileAtomic } from "../common/atomic.js";
 import { CoxaError } from "../common/errors.js";
+import { gzipMembers } from "../common/gzip.js";
 import { columnNorms, isFiniteMat, type Mat4, relativeDeterminant } from "../geometry/mat4.js";
 import { DATATYPES, type Datatype, type VoxelArray } from "./datatypes.js";
 import { matrixToQuaternion, shearOf } from "./nifti-quaternion.js";
@@ -152,6 +153,19 @@ function storeFrame(
 export function writeNifti(path: string, volume: Volume, options: WriteNiftiOptions = {}): void {
   const bytes = encodeNifti(volume, options);
   writeFileAtomic(path, path.endsWith(".gz") ? gzipSync(bytes, { level: options.gzipLevel ?? 6 }) : bytes);
+}
+
+/**
+ * As writeNifti, compressing `.gz` output in parallel chunks off the main thread (several gzip
+ * members, src/common/gzip.ts): for large volumes such as a full-resolution CT grid.
+ */
+export async function writeNiftiAsync(
+  path: string,
+  volume: Volume,
+  options: WriteNiftiOptions = {},
+): Promise<void> {
+  const bytes = encodeNifti(volume, options);
+  writeFileAtomic(path, path.endsWith(".gz") ? await gzipMembers(bytes, options.gzipLevel ?? 6) : bytes);
 }
 
 /** Affine as stored in the header for comparison in tests: the sform, rounded to float32. */

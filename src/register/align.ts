@@ -15,6 +15,7 @@ import { CoxaError } from "../common/errors.js";
 import { sha256File } from "../common/hash.js";
 import type { ProgressFn } from "../common/progress.js";
 import { softwareInfo } from "../common/version.js";
+import type { WorkerPool } from "../common/workers.js";
 import { evaluateLandmarks, landmarkEvaluationToJson } from "../geometry/landmark-evaluation.js";
 import { type LandmarkPairs, pairLandmarks, readLandmarks } from "../geometry/landmarks.js";
 import { inverse, toRows, transformPoint } from "../geometry/mat4.js";
@@ -22,13 +23,13 @@ import { buildTransformRecord, imageRef, writeTransform } from "../geometry/tran
 import { describeParameters, type TransformModel } from "../geometry/transform-model.js";
 import { DATATYPES } from "../image/datatypes.js";
 import type { Modality } from "../image/modality.js";
-import { type NiftiImage, readNifti } from "../image/nifti-read.js";
-import { writeNifti } from "../image/nifti-write.js";
-import { intensityStats, type Volume } from "../image/volume.js";
+import { type NiftiImage, readNifti, readNiftiAsync } from "../image/nifti-read.js";
+import { writeNiftiAsync } from "../image/nifti-write.js";
+import type { Volume } from "../image/volume.js";
 import { readUserMask } from "../masks/user-mask.js";
 import type { MetricKind } from "../metrics/metric.js";
 import { writeAlignReport } from "../report/align-report.js";
-import { resampleOnto } from "../resample/resample.js";
+import { createResamplePool, resampleOnto } from "../resample/resample.js";
 import { REGISTER_DEFAULTS, type RegistrationResult, registerImages } from "./driver.js";
 import type { InitMethod } from "./initialise.js";
 import { propagateAndDice, readLabelNames } from "./labels.js";
@@ -156,13 +157,14 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
   const tStart = performance.now();
   const timing: Record<string, number> = {};
   const progress = options.onProgress;
-  const seed = options.seed ?? REGISTER_DEFAULTS.seed;
 
   // ---- Read and validate everything first ----
-  let t0 = performance.now();
+  const t0 = performance.now();
   progress?.({ stage: "read", fraction: 0 });
-  const fixedImage = readImage3d(options.fixed);
-  const movingImage = readImage3d(options.moving);
+  const [fixedImage, movingImage] = await Promise.all([
+    readImage3d(options.fixed),
+    readImage3d(options.moving),
+  ]);
   const fixed = fixedImage.volume;
   const moving = movingImage.volume;
   const fixedMask = options.fixedMask ? readUserMask(options.fixedMask) : undefined;
@@ -204,6 +206,69 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
   }
   const [fixedSha, movingSha] = await Promise.all([sha256File(options.fixed), sha256File(options.moving)]);
   timing.read = seconds(t0);
+  // Start the resampling threads now; they are ready when registration ends.
+  const pool = createResamplePool(options.threads);
+  try {
+    return await alignValidated(options, {
+      fixedImage,
+      movingImage,
+      fixedSha,
+      movingSha,
+      fixedMask,
+      movingMask,
+      pairs,
+      fixedLabels,
+      movingLabels,
+      files,
+      outDir,
+      timing,
+      tStart,
+      pool,
+    });
+  } finally {
+    await pool.close();
+  }
+}
+
+interface Validated {
+  fixedImage: NiftiImage;
+  movingImage: NiftiImage;
+  fixedSha: string;
+  movingSha: string;
+  fixedMask: Volume | undefined;
+  movingMask: Volume | undefined;
+  pairs: LandmarkPairs | undefined;
+  fixedLabels: Volume | undefined;
+  movingLabels: Volume | undefined;
+  files: AlignResult["files"];
+  outDir: string;
+  timing: Record<string, number>;
+  tStart: number;
+  pool: WorkerPool;
+}
+
+async function alignValidated(options: AlignOptions, v: Validated): Promise<AlignResult> {
+  const {
+    fixedImage,
+    movingImage,
+    fixedSha,
+    movingSha,
+    fixedMask,
+    movingMask,
+    pairs,
+    fixedLabels,
+    movingLabels,
+    files,
+    outDir,
+    timing,
+    tStart,
+    pool,
+  } = v;
+  const fixed = fixedImage.volume;
+  const moving = movingImage.volume;
+  const progress = options.onProgress;
+  const seed = options.seed ?? REGISTER_DEFAULTS.seed;
+  let t0: number;
 
   // ---- Register ----
   t0 = performance.now();
@@ -291,7 +356,7 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
     interp: "linear",
     fill: 0,
     datatype: outDatatype,
-    threads: options.threads,
+    pool,
     onProgress: progress,
   });
   timing.resample = seconds(t0);
@@ -302,7 +367,8 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
   progress?.({ stage: "write", fraction: 0 });
   const fixedRef = imageRef(options.fixed, fixed, fixedSha);
   const movingRef = imageRef(options.moving, moving, movingSha);
-  writeNifti(files.movingOnFixed, movingOnFixed, {
+  // Compressed on the thread pool while the main thread goes on (transform, summary, report).
+  const movingWritten = writeNiftiAsync(files.movingOnFixed, movingOnFixed, {
     datatype: outDatatype,
     gzipLevel: 1,
     description: "coxa moving-on-fixed",
@@ -452,6 +518,9 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
     });
     timing.report = seconds(t0);
   }
+  t0 = performance.now();
+  await movingWritten;
+  timing.write += seconds(t0);
   timing.total = seconds(tStart);
   writeJsonAtomic(files.summary, summary);
   progress?.({ stage: "done", fraction: 1 });
@@ -488,8 +557,8 @@ function metricLabel(m: MetricKind): string {
 }
 
 /** Read an image that must be 3-D with more than one voxel along each axis and usable intensities. */
-function readImage3d(path: string): NiftiImage {
-  const img = readNifti(path);
+async function readImage3d(path: string): Promise<NiftiImage> {
+  const img = await readNiftiAsync(path);
   const { shape, frames } = img.header;
   if (shape.length < 3 || shape.slice(0, 3).some((n) => n < 2)) {
     throw new CoxaError(
@@ -505,10 +574,22 @@ function readImage3d(path: string): NiftiImage {
       path,
     );
   }
-  const s = intensityStats(img.volume.data);
-  if (s.finite === 0) throw new CoxaError("BAD_INPUT", "has no finite intensities", path);
-  if (s.min === s.max)
-    throw new CoxaError("BAD_INPUT", `has one intensity everywhere (${s.min}); nothing to register`, path);
+  // Two different finite values are enough: stop at the first pair.
+  const d = img.volume.data;
+  let first = Number.NaN;
+  let varied = false;
+  for (let i = 0; i < d.length; i++) {
+    const x = d[i];
+    if (x !== x || x === Infinity || x === -Infinity) continue;
+    if (first !== first) first = x;
+    else if (x !== first) {
+      varied = true;
+      break;
+    }
+  }
+  if (first !== first) throw new CoxaError("BAD_INPUT", "has no finite intensities", path);
+  if (!varied)
+    throw new CoxaError("BAD_INPUT", `has one intensity everywhere (${first}); nothing to register`, path);
   return img;
 }
 

@@ -70,6 +70,10 @@ export interface RegisterOptions {
   samplesPerLevel?: readonly number[];
   /** Histogram bins for mi / nmi. */
   bins?: number;
+  /** Which image the level metrics sample (default auto: the one with less to sample). */
+  sampleFrom?: "auto" | "fixed" | "moving" | "coarser";
+  /** Exclude the estimated MR signal void when the other image shows metal (default true). */
+  mrVoid?: boolean;
   /** Repeat the finest level sampling the other image and compare (default true). */
   inverseConsistency?: boolean;
   seed?: number;
@@ -87,6 +91,8 @@ export const REGISTER_DEFAULTS = {
   globalSearch: true,
   bins: 32,
   inverseConsistency: true,
+  mrVoid: true,
+  sampleFrom: "auto" as "auto" | "fixed" | "moving" | "coarser",
   seed: 1,
   /** Samples by level index from the coarsest (common practice, no source; tuned on the phantom). */
   samples: [4000, 12000, 30000, 40000],
@@ -99,6 +105,10 @@ export const REGISTER_DEFAULTS = {
   scanKeep: 5,
   scanSeparationMm: 30,
   scanSamples: 1500,
+  /** Most samples a finest level may use after lever scaling (see buildMetric). */
+  maxSamples: 80000,
+  /** Samples of the inverse-consistency run (it starts at the forward answer). */
+  inverseSamples: 15000,
   /** Implant region for inverse consistency: metal box grown by this (mm). */
   implantRegionMarginMm: 30,
 };
@@ -185,6 +195,7 @@ export function registerImages(
   options: RegisterOptions = {},
 ): RegistrationResult {
   const o = { ...REGISTER_DEFAULTS, ...stripUndefined(options) };
+  if (options.samplesPerLevel) o.samples = [...options.samplesPerLevel];
   const levelsMm = [...o.levelsMm];
   if (levelsMm.length === 0) throw new CoxaError("BAD_ARGUMENT", "at least one pyramid level is needed");
   const progress = options.onProgress;
@@ -192,8 +203,10 @@ export function registerImages(
 
   let t0 = performance.now();
   progress?.({ stage: "pyramid", fraction: 0 });
-  const fPyr = buildPyramid(fixed, { levelsMm });
-  const mPyr = buildPyramid(moving, { levelsMm });
+  // Track voxels above the metal threshold during the pyramid's full-resolution pass, so the
+  // metal mask needs no second pass over a large CT.
+  const fPyr = buildPyramid(fixed, { levelsMm, trackAbove: o.metalMask ? o.metalHu : undefined });
+  const mPyr = buildPyramid(moving, { levelsMm, trackAbove: o.metalMask ? o.metalHu : undefined });
   timings.pyramid = seconds(t0);
 
   t0 = performance.now();
@@ -213,6 +226,7 @@ export function registerImages(
     metalMarginMm: o.metalMarginMm,
     userMask: o.movingMask,
     userMaskName: o.movingMaskName,
+    mrVoid: o.mrVoid && (fMasks.metal?.metalVoxels ?? 0) > 0,
   });
   timings.masks = seconds(t0);
   const L = levelsMm.length;
@@ -273,6 +287,7 @@ export function registerImages(
     sampled: "fixed" | "moving",
     mdl: TransformModel,
     trace?: number[],
+    overlapWeighted = false,
   ) => {
     let best = Infinity;
     let count = 0;
@@ -284,6 +299,7 @@ export function registerImages(
         invertAffine(workInv, work);
         c = metric.evaluate(workInv);
       }
+      if (overlapWeighted && c < 0) c *= metric.overlap;
       count++;
       if (c < best) best = c;
       if (trace && (count < 200 || count % 4 === 0)) trace.push(-best);
@@ -291,40 +307,40 @@ export function registerImages(
     };
   };
 
+  /**
+   * The metric of a level sampling `sampled` inside the part of its mask the other image sees.
+   * With `leverScaled`, the sample count grows with (body radius / region radius)^2, at most
+   * `maxSamples`: the rotation precision of a small region (an MR around one hip) falls with its
+   * radius while the error it causes at distant points grows with theirs.
+   */
   const buildMetric = (
     level: number,
     sampled: "fixed" | "moving",
     current: Mat4,
     samples: number,
     seed: number,
+    leverScaled = false,
   ) => {
     const fV = fPyr.levels[level].volume;
     const mV = mPyr.levels[level].volume;
     const fInc = fMasks.levels[level].include;
     const mInc = mMasks.levels[level].include;
-    if (sampled === "fixed") {
-      const roi = new Uint8Array(fInc.length);
-      const n = maskInsideOther(roi, fInc, fV, mV, current, o.roiMarginMm);
-      if (n === 0) throw new CoxaError("NO_OVERLAP", "the images do not overlap at the start transform");
-      return createMetric(o.metric, {
-        fixed: fV,
-        moving: mV,
-        fixedMask: roi,
-        movingMask: mInc,
-        samples,
-        seed,
-        bins: o.bins,
-      });
-    }
-    const roi = new Uint8Array(mInc.length);
-    const n = maskInsideOther(roi, mInc, mV, fV, inverse(current), o.roiMarginMm);
+    const [sV, oV, sInc, oInc, toOther] =
+      sampled === "fixed" ? [fV, mV, fInc, mInc, current] : [mV, fV, mInc, fInc, inverse(current)];
+    const roi = new Uint8Array(sInc.length);
+    const n = maskInsideOther(roi, sInc, sV, oV, toOther, o.roiMarginMm);
     if (n === 0) throw new CoxaError("NO_OVERLAP", "the images do not overlap at the start transform");
+    let count = samples;
+    if (leverScaled) {
+      const ratio = radiusMm / Math.max(1, maskMoments(roi, sV).radiusMm);
+      count = Math.round(Math.min(o.maxSamples, samples * Math.max(1, ratio * ratio)));
+    }
     return createMetric(o.metric, {
-      fixed: mV,
-      moving: fV,
+      fixed: sV,
+      moving: oV,
       fixedMask: roi,
-      movingMask: fInc,
-      samples,
+      movingMask: oInc,
+      samples: count,
       seed,
       bins: o.bins,
     });
@@ -340,6 +356,8 @@ export function registerImages(
     const scratchM = new Uint8Array(mInc.length);
     const nf = maskInsideOther(scratchF, fInc, fV, mV, current, o.roiMarginMm) * voxelVolume(fV);
     const nm = maskInsideOther(scratchM, mInc, mV, fV, inverse(current), o.roiMarginMm) * voxelVolume(mV);
+    if (o.sampleFrom === "fixed" || o.sampleFrom === "moving") return o.sampleFrom;
+    if (o.sampleFrom === "coarser") return voxelVolume(mV) > voxelVolume(fV) ? "moving" : "fixed";
     return nm < 0.7 * nf ? "moving" : "fixed";
   };
 
@@ -352,15 +370,16 @@ export function registerImages(
     t0 = performance.now();
     progress?.({ stage: `search (${levelsMm[0]} mm)`, fraction: 0, level: 0 });
     const sampled = mMoments.volumeMm3 < 0.7 * fMoments.volumeMm3 ? "moving" : "fixed";
-    const scanMetric =
+    /** A level-0 metric over the whole masks (no field-of-view restriction yet), sampling `sampled`. */
+    const levelZeroMetric = (samples: number, seed: number) =>
       sampled === "fixed"
         ? createMetric(o.metric, {
             fixed: fLevel0,
             moving: mLevel0,
             fixedMask: fMasks.levels[0].include,
             movingMask: mMasks.levels[0].include,
-            samples: o.scanSamples,
-            seed: o.seed,
+            samples,
+            seed,
             bins: o.bins,
           })
         : createMetric(o.metric, {
@@ -368,15 +387,17 @@ export function registerImages(
             moving: fLevel0,
             fixedMask: mMasks.levels[0].include,
             movingMask: fMasks.levels[0].include,
-            samples: o.scanSamples,
-            seed: o.seed,
+            samples,
+            seed,
             bins: o.bins,
           });
+    const scanMetric = levelZeroMetric(o.scanSamples, o.seed);
     const scanInv = new Float64Array(16);
     const scan = scanTranslations({
       start: current,
       cost: (m) =>
-        sampled === "fixed" ? scanMetric.evaluate(m) : scanMetric.evaluate(invertAffine(scanInv, m)),
+        (sampled === "fixed" ? scanMetric.evaluate(m) : scanMetric.evaluate(invertAffine(scanInv, m))) *
+        scanMetric.overlap,
       fixedBody: fBody0,
       fixedGrid: fLevel0,
       movingPointMm: mMoments.centroidMm,
@@ -386,27 +407,10 @@ export function registerImages(
       seed: o.seed,
     });
     // Refine each candidate with Powell on level 0 (a richer sample set, the same for all).
-    const refineMetric =
-      sampled === "fixed"
-        ? createMetric(o.metric, {
-            fixed: fLevel0,
-            moving: mLevel0,
-            fixedMask: fMasks.levels[0].include,
-            movingMask: mMasks.levels[0].include,
-            samples: o.samples[0],
-            seed: o.seed + 101,
-            bins: o.bins,
-          })
-        : createMetric(o.metric, {
-            fixed: mLevel0,
-            moving: fLevel0,
-            fixedMask: mMasks.levels[0].include,
-            movingMask: fMasks.levels[0].include,
-            samples: o.samples[0],
-            seed: o.seed + 101,
-            bins: o.bins,
-          });
-    const objective = makeObjective(refineMetric, sampled, "rigid");
+    const refineMetric = levelZeroMetric(o.samples[0], o.seed + 101);
+    // The search compares places with different overlaps: similarity weighted by the share of
+    // samples that count, so that a small, accidentally similar overlap cannot win.
+    const objective = makeObjective(refineMetric, sampled, "rigid", undefined, true);
     const refined: { x: Float64Array; value: number; isStart: boolean }[] = [];
     for (let c = 0; c < scan.candidates.length; c++) {
       const cand = scan.candidates[c];
@@ -469,7 +473,7 @@ export function registerImages(
     }
     const sampled = chooseSampled(l, current);
     const samples = o.samples[Math.min(l, o.samples.length - 1)];
-    const metric = buildMetric(l, sampled, current, samples, o.seed + 17 * (l + 1));
+    const metric = buildMetric(l, sampled, current, samples, o.seed + 17 * (l + 1), l === finest);
     const trace: number[] = [];
     const objective = makeObjective(metric, sampled, model, trace);
     const startValue = objective(params);
@@ -553,13 +557,7 @@ export function registerImages(
     progress?.({ stage: stageName, fraction: 0 });
     let metric: Metric | undefined;
     try {
-      metric = buildMetric(
-        finest,
-        other,
-        current,
-        o.samples[Math.min(finest, o.samples.length - 1)],
-        o.seed + 991,
-      );
+      metric = buildMetric(finest, other, current, o.inverseSamples, o.seed + 991, true);
     } catch (err) {
       if (!(err instanceof CoxaError && err.code === "NO_OVERLAP")) throw err;
     }
@@ -567,7 +565,7 @@ export function registerImages(
       const objective = makeObjective(metric, other, model);
       const budget = o.maxEvaluationsPerLevel;
       const r = powell(objective, params, {
-        scales: scaleBy(parameterScales(model, radiusMm), levelsMm[finest] / 2),
+        scales: scaleBy(parameterScales(model, radiusMm), levelsMm[finest] / 8),
         maxEvaluations: budget,
         lineTolerance: 0.02,
         tolerances: { x: 0.01, fRelative: 1e-6 },

@@ -103,12 +103,12 @@ table.kv th { min-width: 12em; }
 table.inputs { width: 100%; table-layout: fixed; } table.inputs th:first-child { width: 11em; }
 table.matrix td { font-family: ui-monospace, Menlo, Consolas, "DejaVu Sans Mono", monospace; text-align: right; padding: 2px 10px; border: none; }
 table.matrix { border-left: 2px solid ${PALETTE.ink}; border-right: 2px solid ${PALETTE.ink}; border-collapse: separate; background: #fff; margin: 6px 0 12px; }
-.panel-grid { display: grid; grid-template-columns: 76px repeat(4, max-content); gap: 8px 8px; align-items: start; margin: 8px 0 18px; }
+.panel-grid { display: grid; grid-template-columns: 76px repeat(4, minmax(0, max-content)); gap: 8px 8px; align-items: start; margin: 8px 0 18px; }
 .panel-grid .col-head { font-weight: 600; font-size: 13px; text-align: center; align-self: end; }
 .panel-grid .row-head { font-size: 13px; font-weight: 600; padding-top: 6px; }
 .panel-grid .row-head span { display: block; font-weight: 400; color: ${PALETTE.muted}; font-size: 12px; }
 figure.panel { margin: 0; background: #0e1216; border: 1px solid #0e1216; line-height: 0; }
-figure.panel svg { display: block; }
+figure.panel svg { display: block; max-width: 100%; height: auto; }
 .legend-row { display: flex; flex-wrap: wrap; gap: 6px 20px; font-size: 13px; margin: 6px 0; }
 .legend-row .key { display: inline-flex; align-items: center; gap: 6px; }
 .swatch { display: inline-block; width: 22px; height: 12px; border: 1px solid ${PALETTE.ink}; }
