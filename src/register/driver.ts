@@ -34,6 +34,7 @@ import type { Modality } from "../image/modality.js";
 import type { Volume } from "../image/volume.js";
 import { type ImageMasks, prepareLevelMasks } from "../masks/level-masks.js";
 import { createMetric, type Metric, type MetricKind } from "../metrics/metric.js";
+import { robustRange } from "../metrics/sampler.js";
 import { powell } from "../optimize/powell.js";
 import { buildPyramid, type Pyramid } from "../pyramid/pyramid.js";
 import { type InitialTransform, type InitMethod, initialTransform } from "./initialise.js";
@@ -307,6 +308,21 @@ export function registerImages(
     };
   };
 
+  /** Robust intensity range of an image's whole mask on a level, computed once. */
+  const ranges = new Map<string, [number, number]>();
+  const rangeOf = (level: number, image: "fixed" | "moving"): [number, number] | undefined => {
+    if (o.metric === "lncc") return undefined;
+    const key = `${level}:${image}`;
+    let r = ranges.get(key);
+    if (!r) {
+      const pyr = image === "fixed" ? fPyr : mPyr;
+      const masks = image === "fixed" ? fMasks : mMasks;
+      r = robustRange(pyr.levels[level].volume.data, masks.levels[level].include);
+      ranges.set(key, r);
+    }
+    return r;
+  };
+
   /**
    * The metric of a level sampling `sampled` inside the part of its mask the other image sees.
    * With `leverScaled`, the sample count grows with (body radius / region radius)^2, at most
@@ -343,6 +359,9 @@ export function registerImages(
       samples: count,
       seed,
       bins: o.bins,
+      // The sampled image's range comes from its own region (computed by createMetric); the
+      // other image's from its whole mask, the same on every call of a level.
+      movingRange: rangeOf(level, sampled === "fixed" ? "moving" : "fixed"),
     });
   };
 
@@ -381,6 +400,8 @@ export function registerImages(
             samples,
             seed,
             bins: o.bins,
+            fixedRange: rangeOf(0, "fixed"),
+            movingRange: rangeOf(0, "moving"),
           })
         : createMetric(o.metric, {
             fixed: mLevel0,
@@ -390,6 +411,8 @@ export function registerImages(
             samples,
             seed,
             bins: o.bins,
+            fixedRange: rangeOf(0, "moving"),
+            movingRange: rangeOf(0, "fixed"),
           });
     const scanMetric = levelZeroMetric(o.scanSamples, o.seed);
     const scanInv = new Float64Array(16);
