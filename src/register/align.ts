@@ -165,8 +165,6 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
     readImage3d(options.fixed),
     readImage3d(options.moving),
   ]);
-  const fixed = fixedImage.volume;
-  const moving = movingImage.volume;
   const fixedMask = options.fixedMask ? readUserMask(options.fixedMask) : undefined;
   const movingMask = options.movingMask ? readUserMask(options.movingMask) : undefined;
   let pairs: LandmarkPairs | undefined;
