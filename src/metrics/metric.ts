@@ -11,7 +11,7 @@
  * by moving.worldToIndex · T and the moving image is sampled there by trilinear interpolation.
  * A sample COUNTS only if it lies in the fixed mask (the sample set is drawn from it), its
  * mapped point lies inside the moving image box [-0.5, n - 0.5]^3 and the moving mask is set at
- * the nearest moving voxel. `overlap` = counted / samples of the last evaluation. When fewer
+ * the nearest moving voxel (read from a bit-packed copy of the mask, small enough to stay in cache). `overlap` = counted / samples of the last evaluation. When fewer
  * than max(minSamples, minOverlap x samples) count, the cost is a penalty worse than any real
  * value and growing as the overlap shrinks: worst + 1 + (1 - overlap), worst being 0 (mi,
  * lncc) or -1 (nmi) — too little overlap can never look like a good match.
@@ -137,11 +137,24 @@ export function createMetric(kind: MetricKind, options: MetricOptions): Metric {
     movingData,
     movingDims: moving.dims,
     movingW2I: moving.worldToIndex,
-    movingMask: options.movingMask,
+    movingBits: options.movingMask ? packedMask(options.movingMask) : undefined,
     minCount: (n) => Math.max(minSamples, minOverlap * n),
   };
   if (kind === "lncc") return new LnccMetric(ctx, fixed, options);
   return new HistogramMetric(kind, ctx, fixed, moving, options);
+}
+
+const packedCache = new WeakMap<Uint8Array, Uint8Array>();
+
+/** The mask as a bitset (bit q & 7 of byte q >> 3), cached per mask array. */
+function packedMask(mask: Uint8Array): Uint8Array {
+  let bits = packedCache.get(mask);
+  if (!bits) {
+    bits = new Uint8Array((mask.length + 7) >> 3);
+    for (let q = 0; q < mask.length; q++) if (mask[q] !== 0) bits[q >> 3] |= 1 << (q & 7);
+    packedCache.set(mask, bits);
+  }
+  return bits;
 }
 
 interface Context {
@@ -149,7 +162,8 @@ interface Context {
   movingData: Float32Array;
   movingDims: readonly [number, number, number];
   movingW2I: Mat4;
-  movingMask: Uint8Array | undefined;
+  /** Moving mask as a bitset, or undefined for none. */
+  movingBits: Uint8Array | undefined;
   minCount: (n: number) => number;
 }
 
@@ -219,100 +233,26 @@ class HistogramMetric implements Metric {
 
   evaluate(fixedToMoving: Mat4): number {
     checkTransform(fixedToMoving);
-    const { samples, movingData: data, movingDims, movingMask } = this.ctx;
+    const { samples, movingData: data, movingDims } = this.ctx;
     const m = multiply(this.m, this.ctx.movingW2I, fixedToMoving);
-    const m00 = m[0];
-    const m01 = m[1];
-    const m02 = m[2];
-    const m03 = m[3];
-    const m10 = m[4];
-    const m11 = m[5];
-    const m12 = m[6];
-    const m13 = m[7];
-    const m20 = m[8];
-    const m21 = m[9];
-    const m22 = m[10];
-    const m23 = m[11];
     const [nx, ny, nz] = movingDims;
-    const nxy = nx * ny;
-    const xmax = nx - 1;
-    const ymax = ny - 1;
-    const zmax = nz - 1;
-    const bx = nx - 0.5;
-    const by = ny - 0.5;
-    const bz = nz - 0.5;
-    const world = samples.world;
-    const fixedBin = this.fixedBin;
-    const joint = this.joint;
-    const bins = this.bins;
-    const scale = this.mScale;
-    const offset = this.mOffset;
-    const box = this.box;
-    const lastPos = bins - 3;
-    joint.fill(0);
-    let counted = 0;
     const n = samples.count;
-    for (let s = 0; s < n; s++) {
-      const x = world[3 * s];
-      const y = world[3 * s + 1];
-      const z = world[3 * s + 2];
-      let u = m00 * x + m01 * y + m02 * z + m03;
-      let v = m10 * x + m11 * y + m12 * z + m13;
-      let w = m20 * x + m21 * y + m22 * z + m23;
-      if (!(u >= -0.5 && u <= bx && v >= -0.5 && v <= by && w >= -0.5 && w <= bz)) continue;
-      if (movingMask !== undefined) {
-        let ri = (u + 0.5) | 0;
-        let rj = (v + 0.5) | 0;
-        let rk = (w + 0.5) | 0;
-        if (ri > xmax) ri = xmax;
-        if (rj > ymax) rj = ymax;
-        if (rk > zmax) rk = zmax;
-        if (movingMask[ri + nx * rj + nxy * rk] === 0) continue;
-      }
-      u = u < 0 ? 0 : u > xmax ? xmax : u;
-      v = v < 0 ? 0 : v > ymax ? ymax : v;
-      w = w < 0 ? 0 : w > zmax ? zmax : w;
-      const i = u | 0;
-      const j = v | 0;
-      const k = w | 0;
-      const fx = u - i;
-      const fy = v - j;
-      const fz = w - k;
-      const o = i + nx * j + nxy * k;
-      const sx = i < xmax ? 1 : 0;
-      const sy = j < ymax ? nx : 0;
-      const sz = k < zmax ? nxy : 0;
-      const a = data[o];
-      const b = data[o + sy];
-      const c = data[o + sz];
-      const d = data[o + sz + sy];
-      const c00 = a + fx * (data[o + sx] - a);
-      const c10 = b + fx * (data[o + sy + sx] - b);
-      const c01 = c + fx * (data[o + sz + sx] - c);
-      const c11 = d + fx * (data[o + sz + sy + sx] - d);
-      const e = c00 + fy * (c10 - c00);
-      const val = e + fz * (c01 + fy * (c11 - c01) - e);
-      if (val !== val) continue;
-      counted++;
-      const row = fixedBin[s] * bins;
-      if (box) {
-        let bin = Math.floor(val * scale + offset);
-        bin = bin < 0 ? 0 : bin >= bins ? bins - 1 : bin;
-        joint[row + bin] += 1;
-      } else {
-        let t = val * scale + offset;
-        t = t < 2 ? 2 : t > lastPos ? lastPos : t;
-        const t0 = t | 0;
-        const f = t - t0;
-        const g = 1 - f;
-        const o0 = row + t0;
-        // Cubic B-spline weights of bins t0-1 .. t0+2 (they sum to 1).
-        joint[o0 - 1] += (g * g * g) / 6;
-        joint[o0] += (4 - 6 * f * f + 3 * f * f * f) / 6;
-        joint[o0 + 1] += (4 - 6 * g * g + 3 * g * g * g) / 6;
-        joint[o0 + 2] += (f * f * f) / 6;
-      }
-    }
+    const counted = accumulateJoint(
+      this.joint,
+      this.fixedBin,
+      this.bins,
+      this.mScale,
+      this.mOffset,
+      this.box,
+      samples.world,
+      n,
+      data,
+      this.ctx.movingBits,
+      nx,
+      ny,
+      nz,
+      m,
+    );
     this.counted = counted;
     this.overlap = n > 0 ? counted / n : 0;
     if (counted < this.ctx.minCount(n) || counted === 0) {
@@ -465,7 +405,7 @@ class LnccMetric implements Metric {
 
   evaluate(fixedToMoving: Mat4): number {
     checkTransform(fixedToMoving);
-    const { movingData: data, movingDims, movingMask } = this.ctx;
+    const { movingData: data, movingDims, movingBits: bits } = this.ctx;
     const m = multiply(this.m, this.ctx.movingW2I, fixedToMoving);
     const points = this.points;
     const off = this.offsets;
@@ -500,14 +440,15 @@ class LnccMetric implements Metric {
       const v0 = m[4] * x + m[5] * y + m[6] * z + m[7];
       const w0 = m[8] * x + m[9] * y + m[10] * z + m[11];
       if (!(u0 >= -0.5 && u0 <= bx && v0 >= -0.5 && v0 <= by && w0 >= -0.5 && w0 <= bz)) continue;
-      if (movingMask !== undefined) {
+      if (bits !== undefined) {
         let ri = (u0 + 0.5) | 0;
         let rj = (v0 + 0.5) | 0;
         let rk = (w0 + 0.5) | 0;
         if (ri > xmax) ri = xmax;
         if (rj > ymax) rj = ymax;
         if (rk > zmax) rk = zmax;
-        if (movingMask[ri + nx * rj + nxy * rk] === 0) continue;
+        const q = ri + nx * rj + nxy * rk;
+        if ((bits[q >> 3] & (1 << (q & 7))) === 0) continue;
       }
       let sum = 0;
       let sum2 = 0;
@@ -568,4 +509,114 @@ class LnccMetric implements Metric {
     this.similarity = total / counted;
     return -this.similarity;
   }
+}
+
+/**
+ * The hot loop of the histogram metrics, kept in its own small function so that the optimising
+ * compiler sees all of it (a long loop inside a larger method was compiled before the code after
+ * it had run, and deoptimised there on every call). Maps each sample through `m` (fixed world ->
+ * moving voxel index), interpolates the moving image trilinearly and adds the sample to the joint
+ * histogram (box or cubic B-spline Parzen window). Returns the number of samples counted.
+ */
+function accumulateJoint(
+  joint: Float64Array,
+  fixedBin: Int32Array,
+  bins: number,
+  scale: number,
+  offset: number,
+  box: boolean,
+  world: Float64Array,
+  n: number,
+  data: Float32Array,
+  bits: Uint8Array | undefined,
+  nx: number,
+  ny: number,
+  nz: number,
+  m: Float64Array,
+): number {
+  const m00 = m[0];
+  const m01 = m[1];
+  const m02 = m[2];
+  const m03 = m[3];
+  const m10 = m[4];
+  const m11 = m[5];
+  const m12 = m[6];
+  const m13 = m[7];
+  const m20 = m[8];
+  const m21 = m[9];
+  const m22 = m[10];
+  const m23 = m[11];
+  const nxy = nx * ny;
+  const xmax = nx - 1;
+  const ymax = ny - 1;
+  const zmax = nz - 1;
+  const bx = nx - 0.5;
+  const by = ny - 0.5;
+  const bz = nz - 0.5;
+  const lastPos = bins - 3;
+  joint.fill(0);
+  let counted = 0;
+  for (let s = 0; s < n; s++) {
+    const x = world[3 * s];
+    const y = world[3 * s + 1];
+    const z = world[3 * s + 2];
+    let u = m00 * x + m01 * y + m02 * z + m03;
+    let v = m10 * x + m11 * y + m12 * z + m13;
+    let w = m20 * x + m21 * y + m22 * z + m23;
+    if (!(u >= -0.5 && u <= bx && v >= -0.5 && v <= by && w >= -0.5 && w <= bz)) continue;
+    if (bits !== undefined) {
+      let ri = (u + 0.5) | 0;
+      let rj = (v + 0.5) | 0;
+      let rk = (w + 0.5) | 0;
+      if (ri > xmax) ri = xmax;
+      if (rj > ymax) rj = ymax;
+      if (rk > zmax) rk = zmax;
+      const q = ri + nx * rj + nxy * rk;
+      if ((bits[q >> 3] & (1 << (q & 7))) === 0) continue;
+    }
+    u = u < 0 ? 0 : u > xmax ? xmax : u;
+    v = v < 0 ? 0 : v > ymax ? ymax : v;
+    w = w < 0 ? 0 : w > zmax ? zmax : w;
+    const i = u | 0;
+    const j = v | 0;
+    const k = w | 0;
+    const fx = u - i;
+    const fy = v - j;
+    const fz = w - k;
+    const o = i + nx * j + nxy * k;
+    const sx = i < xmax ? 1 : 0;
+    const sy = j < ymax ? nx : 0;
+    const sz = k < zmax ? nxy : 0;
+    const a = data[o];
+    const b = data[o + sy];
+    const c = data[o + sz];
+    const d = data[o + sz + sy];
+    const c00 = a + fx * (data[o + sx] - a);
+    const c10 = b + fx * (data[o + sy + sx] - b);
+    const c01 = c + fx * (data[o + sz + sx] - c);
+    const c11 = d + fx * (data[o + sz + sy + sx] - d);
+    const e = c00 + fy * (c10 - c00);
+    const val = e + fz * (c01 + fy * (c11 - c01) - e);
+    if (val !== val) continue;
+    counted++;
+    const row = fixedBin[s] * bins;
+    if (box) {
+      let bin = Math.floor(val * scale + offset);
+      bin = bin < 0 ? 0 : bin >= bins ? bins - 1 : bin;
+      joint[row + bin] += 1;
+    } else {
+      let t = val * scale + offset;
+      t = t < 2 ? 2 : t > lastPos ? lastPos : t;
+      const t0 = t | 0;
+      const f = t - t0;
+      const g = 1 - f;
+      const o0 = row + t0;
+      // Cubic B-spline weights of bins t0-1 .. t0+2 (they sum to 1).
+      joint[o0 - 1] += (g * g * g) / 6;
+      joint[o0] += (4 - 6 * f * f + 3 * f * f * f) / 6;
+      joint[o0 + 1] += (4 - 6 * g * g + 3 * g * g * g) / 6;
+      joint[o0 + 2] += (f * f * f) / 6;
+    }
+  }
+  return counted;
 }

@@ -120,7 +120,8 @@ export function percentile(values: ArrayLike<number>, percent: number): number {
  * @param data - voxel values
  * @param mask - allowed voxels (nonzero); default all
  * @param percents - [low, high] in percent; default [0.5, 99.5]
- * @param maxValues - at most this many voxels are used (regular stride); default 200,000
+ * @param maxValues - about this many voxels are used (every step-th voxel of the volume, exact
+ *   for volumes up to twice this size); default 200,000
  * @returns [lo, hi] with hi > lo (widened by 1 unit for a constant image)
  * @throws CoxaError NO_OVERLAP when there is no finite value
  */
@@ -130,17 +131,12 @@ export function robustRange(
   percents: readonly [number, number] = [0.5, 99.5],
   maxValues = 200_000,
 ): [number, number] {
-  let n = 0;
-  for (let q = 0; q < data.length; q++) if (mask?.[q] !== 0 && data[q] === data[q]) n++;
-  if (n === 0) throw new CoxaError("NO_OVERLAP", "no finite voxel inside the mask");
-  const stride = Math.max(1, Math.ceil(n / maxValues));
-  const picked = new Float64Array(Math.ceil(n / stride));
-  let c = 0;
-  let seen = 0;
-  for (let q = 0; q < data.length; q++) {
-    if ((mask && mask[q] === 0) || data[q] !== data[q]) continue;
-    if (seen++ % stride === 0) picked[c++] = data[q];
-  }
+  // Visit every step-th voxel (exact, step 1, up to 2 x maxValues voxels); fall back to every
+  // voxel when a sparse mask leaves too few of them.
+  let picked = pickValues(data, mask, Math.max(1, Math.floor(data.length / (2 * maxValues))));
+  if (picked.length < 1000) picked = pickValues(data, mask, 1);
+  if (picked.length === 0) throw new CoxaError("NO_OVERLAP", "no finite voxel inside the mask");
+  const c = picked.length;
   const values = picked.subarray(0, c);
   values.sort();
   const at = (p: number) => {
@@ -156,4 +152,22 @@ export function robustRange(
     hi += 0.5;
   }
   return [lo, hi];
+}
+
+/** Finite values of `data` inside `mask` at every `step`-th voxel. */
+function pickValues(data: VoxelArray, mask: Uint8Array | undefined, step: number): Float64Array {
+  const out = new Float64Array(Math.ceil(data.length / step));
+  let c = 0;
+  if (mask) {
+    for (let q = 0; q < data.length; q += step) {
+      const v = data[q];
+      if (mask[q] !== 0 && v === v) out[c++] = v;
+    }
+  } else {
+    for (let q = 0; q < data.length; q += step) {
+      const v = data[q];
+      if (v === v) out[c++] = v;
+    }
+  }
+  return out.subarray(0, c);
 }

@@ -38,7 +38,14 @@ import { robustRange } from "../metrics/sampler.js";
 import { powell } from "../optimize/powell.js";
 import { buildPyramid, type Pyramid } from "../pyramid/pyramid.js";
 import { type InitialTransform, type InitMethod, initialTransform } from "./initialise.js";
-import { boxCorners, maskBoundsWorld, maskInsideOther, maskMoments, maxDisplacementMm } from "./regions.js";
+import {
+  boxCorners,
+  maskBoundsWorld,
+  maskInsideOther,
+  maskMoments,
+  maskRadiusMm,
+  maxDisplacementMm,
+} from "./regions.js";
 import { scanTranslations } from "./search.js";
 
 /** Registration options; defaults in REGISTER_DEFAULTS. */
@@ -336,6 +343,7 @@ export function registerImages(
     samples: number,
     seed: number,
     leverScaled = false,
+    givenRoi?: Uint8Array,
   ) => {
     const fV = fPyr.levels[level].volume;
     const mV = mPyr.levels[level].volume;
@@ -343,12 +351,15 @@ export function registerImages(
     const mInc = mMasks.levels[level].include;
     const [sV, oV, sInc, oInc, toOther] =
       sampled === "fixed" ? [fV, mV, fInc, mInc, current] : [mV, fV, mInc, fInc, inverse(current)];
-    const roi = new Uint8Array(sInc.length);
-    const n = maskInsideOther(roi, sInc, sV, oV, toOther, o.roiMarginMm);
-    if (n === 0) throw new CoxaError("NO_OVERLAP", "the images do not overlap at the start transform");
+    let roi = givenRoi;
+    if (!roi) {
+      roi = new Uint8Array(sInc.length);
+      const n = maskInsideOther(roi, sInc, sV, oV, toOther, o.roiMarginMm);
+      if (n === 0) throw new CoxaError("NO_OVERLAP", "the images do not overlap at the start transform");
+    }
     let count = samples;
     if (leverScaled) {
-      const ratio = radiusMm / Math.max(1, maskMoments(roi, sV).radiusMm);
+      const ratio = radiusMm / Math.max(1, maskRadiusMm(roi, sV));
       count = Math.round(Math.min(o.maxSamples, samples * Math.max(1, ratio * ratio)));
     }
     return createMetric(o.metric, {
@@ -366,18 +377,22 @@ export function registerImages(
   };
 
   /** Which image to sample on a level: the one whose mask inside the other's view is smaller. */
-  const chooseSampled = (level: number, current: Mat4): "fixed" | "moving" => {
+  const chooseSampled = (level: number, current: Mat4): { sampled: "fixed" | "moving"; roi: Uint8Array } => {
     const fV = fPyr.levels[level].volume;
     const mV = mPyr.levels[level].volume;
     const fInc = fMasks.levels[level].include;
     const mInc = mMasks.levels[level].include;
-    const scratchF = new Uint8Array(fInc.length);
-    const scratchM = new Uint8Array(mInc.length);
-    const nf = maskInsideOther(scratchF, fInc, fV, mV, current, o.roiMarginMm) * voxelVolume(fV);
-    const nm = maskInsideOther(scratchM, mInc, mV, fV, inverse(current), o.roiMarginMm) * voxelVolume(mV);
-    if (o.sampleFrom === "fixed" || o.sampleFrom === "moving") return o.sampleFrom;
-    if (o.sampleFrom === "coarser") return voxelVolume(mV) > voxelVolume(fV) ? "moving" : "fixed";
-    return nm < 0.7 * nf ? "moving" : "fixed";
+    const roiF = new Uint8Array(fInc.length);
+    const roiM = new Uint8Array(mInc.length);
+    const nf = maskInsideOther(roiF, fInc, fV, mV, current, o.roiMarginMm);
+    const nm = maskInsideOther(roiM, mInc, mV, fV, inverse(current), o.roiMarginMm);
+    if (nf === 0 || nm === 0)
+      throw new CoxaError("NO_OVERLAP", "the images do not overlap at the current transform");
+    let sampled: "fixed" | "moving";
+    if (o.sampleFrom === "fixed" || o.sampleFrom === "moving") sampled = o.sampleFrom;
+    else if (o.sampleFrom === "coarser") sampled = voxelVolume(mV) > voxelVolume(fV) ? "moving" : "fixed";
+    else sampled = nm * voxelVolume(mV) < 0.7 * nf * voxelVolume(fV) ? "moving" : "fixed";
+    return { sampled, roi: sampled === "fixed" ? roiF : roiM };
   };
 
   const current = identity();
@@ -494,9 +509,9 @@ export function registerImages(
       params = convertParameters(model, params, levelModel, centerMm);
       model = levelModel;
     }
-    const sampled = chooseSampled(l, current);
+    const { sampled, roi } = chooseSampled(l, current);
     const samples = o.samples[Math.min(l, o.samples.length - 1)];
-    const metric = buildMetric(l, sampled, current, samples, o.seed + 17 * (l + 1), l === finest);
+    const metric = buildMetric(l, sampled, current, samples, o.seed + 17 * (l + 1), l === finest, roi);
     const trace: number[] = [];
     const objective = makeObjective(metric, sampled, model, trace);
     const startValue = objective(params);

@@ -128,6 +128,43 @@ export function maskMoments(mask: Uint8Array, volume: Volume): MaskMoments {
 }
 
 /**
+ * RMS distance (mm) of a mask's voxel centres from their centroid, in one pass
+ * (E|x|^2 - |E x|^2): what the sample-count lever rule needs, without the full moments.
+ */
+export function maskRadiusMm(mask: Uint8Array, volume: Volume): number {
+  const [nx, ny, nz] = volume.dims;
+  const m = volume.indexToWorld;
+  let n = 0;
+  let sx = 0;
+  let sy = 0;
+  let sz = 0;
+  let s2 = 0;
+  for (let k = 0, q = 0; k < nz; k++) {
+    for (let j = 0; j < ny; j++) {
+      const bx = m[1] * j + m[2] * k;
+      const by = m[5] * j + m[6] * k;
+      const bz = m[9] * j + m[10] * k;
+      for (let i = 0; i < nx; i++, q++) {
+        if (mask[q] === 0) continue;
+        const x = m[0] * i + bx;
+        const y = m[4] * i + by;
+        const z = m[8] * i + bz;
+        n++;
+        sx += x;
+        sy += y;
+        sz += z;
+        s2 += x * x + y * y + z * z;
+      }
+    }
+  }
+  if (n === 0) return 0;
+  const cx = sx / n;
+  const cy = sy / n;
+  const cz = sz / n;
+  return Math.sqrt(Math.max(0, s2 / n - (cx * cx + cy * cy + cz * cz)));
+}
+
+/**
  * The voxels of `mask` whose centres map (through `gridToOther`) inside `other`'s voxel box
  * grown by `marginMm` on every side.
  * @param out - output mask (may be `mask`)
