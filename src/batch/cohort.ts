@@ -20,8 +20,8 @@
 import { existsSync, readdirSync, statSync } from "node:fs";
 import { basename, join } from "node:path";
 import { writeFileAtomic } from "../common/atomic.js";
+import { formatCsv } from "../common/csv.js";
 import { softwareInfo } from "../common/version.js";
-import { formatCsv } from "../export/csv.js";
 import { DEFAULT_THRESHOLDS } from "../register/quality.js";
 import {
   type Cell,

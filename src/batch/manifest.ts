@@ -21,8 +21,8 @@
  */
 import { existsSync, readFileSync, realpathSync, statSync } from "node:fs";
 import { dirname, isAbsolute, relative, resolve } from "node:path";
+import { CsvSyntaxError, parseCsv } from "../common/csv.js";
 import { CoxaError } from "../common/errors.js";
-import { CsvSyntaxError, parseCsv } from "../export/csv.js";
 
 /** Required manifest columns. */
 export const REQUIRED_COLUMNS = ["case", "fixed", "moving"] as const;

@@ -1,14 +1,15 @@
 /** `coxa align`: register MR to CT (or any pair), write transform, resampled image, summary and report. */
 import { Command, Option } from "commander";
-import { TRANSFORM_MODELS, type TransformModel } from "../geometry/transform-model.js";
+import type { TransformModel } from "../geometry/transform-model.js";
 import type { Modality } from "../image/modality.js";
-import { METRIC_KINDS, type MetricKind } from "../metrics/metric.js";
+import type { MetricKind } from "../metrics/metric.js";
 import { alignPair } from "../register/align.js";
 import { REGISTER_DEFAULTS } from "../register/driver.js";
 import { INIT_METHODS, type InitMethod } from "../register/initialise.js";
 import { DEFAULT_THRESHOLDS } from "../register/quality.js";
-import { integerIn, numberIn, numberList } from "./parse.js";
+import { integerIn, numberIn } from "./parse.js";
 import { createProgressBar } from "./progress.js";
+import { addRegistrationOptions } from "./registration-options.js";
 import type { CliContext } from "./run.js";
 
 interface AlignFlags {
@@ -41,38 +42,15 @@ interface AlignFlags {
 }
 
 export function alignCommand(ctx: CliContext): Command {
-  return new Command("align")
-    .description(
-      "Register the moving image (usually MR) to the fixed image (usually CT), ignoring metal, and judge the result.",
-    )
-    .requiredOption("--fixed <img>", "fixed image (NIfTI), usually the CT")
-    .requiredOption("--moving <img>", "moving image (NIfTI), usually the MR")
-    .requiredOption("--out <dir>", "output folder (created if absent)")
-    .addOption(
-      new Option("--model <model>", "transform model")
-        .choices(TRANSFORM_MODELS)
-        .default(REGISTER_DEFAULTS.model),
-    )
-    .addOption(
-      new Option("--metric <metric>", "similarity metric")
-        .choices(METRIC_KINDS)
-        .default(REGISTER_DEFAULTS.metric),
-    )
-    .addOption(
-      new Option("--levels <mm,...>", "pyramid sampling steps in mm, coarse to fine")
-        .argParser(numberList(0.1, 100))
-        .default([...REGISTER_DEFAULTS.levelsMm], REGISTER_DEFAULTS.levelsMm.join(",")),
-    )
-    .addOption(
-      new Option("--metal-hu <hu>", "CT metal threshold (HU)")
-        .argParser(numberIn(-1024, 1e6))
-        .default(REGISTER_DEFAULTS.metalHu),
-    )
-    .addOption(
-      new Option("--metal-margin-mm <mm>", "margin excluded around metal (mm)")
-        .argParser(numberIn(0, 100))
-        .default(REGISTER_DEFAULTS.metalMarginMm),
-    )
+  return addRegistrationOptions(
+    new Command("align")
+      .description(
+        "Register the moving image (usually MR) to the fixed image (usually CT), ignoring metal, and judge the result.",
+      )
+      .requiredOption("--fixed <img>", "fixed image (NIfTI), usually the CT")
+      .requiredOption("--moving <img>", "moving image (NIfTI), usually the MR")
+      .requiredOption("--out <dir>", "output folder (created if absent)"),
+  )
     .option("--no-metal-mask", "use metal and its margin in the metric (not recommended)")
     .addOption(
       new Option("--fixed-modality <m>", "override the detected modality of the fixed image").choices([

@@ -1,12 +1,12 @@
 /** `coxa stress`: does registration of this pair survive implant shadowing and a poor start? */
 import { Command, InvalidArgumentError, Option } from "commander";
-import { TRANSFORM_MODELS, type TransformModel } from "../geometry/transform-model.js";
-import { METRIC_KINDS, type MetricKind } from "../metrics/metric.js";
-import { REGISTER_DEFAULTS } from "../register/driver.js";
+import type { TransformModel } from "../geometry/transform-model.js";
+import type { MetricKind } from "../metrics/metric.js";
 import { runStress, STRESS_DEFAULTS } from "../stress/stress.js";
 import { formatSeverity } from "../stress/summary.js";
 import { integerIn, numberIn, numberList } from "./parse.js";
 import { createProgressBar } from "./progress.js";
+import { addRegistrationOptions } from "./registration-options.js";
 import type { CliContext } from "./run.js";
 
 interface StressFlags {
@@ -75,13 +75,15 @@ Examples:
 
 /** The `coxa stress` command: options parsed into runStress, summary printed. */
 export function stressCommand(ctx: CliContext): Command {
-  return new Command("stress")
-    .description(
-      "Measure how much implant shadowing and how large a starting offset registration of a CT-MR pair survives.",
-    )
-    .requiredOption("--fixed <img>", "fixed image: the CT (NIfTI, HU)")
-    .requiredOption("--moving <img>", "moving image: the MR (NIfTI)")
-    .requiredOption("--out <dir>", "output folder (created if absent)")
+  return addRegistrationOptions(
+    new Command("stress")
+      .description(
+        "Measure how much implant shadowing and how large a starting offset registration of a CT-MR pair survives.",
+      )
+      .requiredOption("--fixed <img>", "fixed image: the CT (NIfTI, HU)")
+      .requiredOption("--moving <img>", "moving image: the MR (NIfTI)")
+      .requiredOption("--out <dir>", "output folder (created if absent)"),
+  )
     .option("--reference <json>", "accepted transform of the pair (coxa transform.json, checked by sha256)")
     .option("--truth <json>", "a phantom's truth.json (its fixed_to_moving is the reference)")
     .option(
@@ -133,31 +135,6 @@ export function stressCommand(ctx: CliContext): Command {
         .default("i"),
     )
     .option("--no-search", "skip the coarse global search (measures the local capture range alone)")
-    .addOption(
-      new Option("--model <model>", "transform model")
-        .choices(TRANSFORM_MODELS)
-        .default(REGISTER_DEFAULTS.model),
-    )
-    .addOption(
-      new Option("--metric <metric>", "similarity metric")
-        .choices(METRIC_KINDS)
-        .default(REGISTER_DEFAULTS.metric),
-    )
-    .addOption(
-      new Option("--levels <mm,...>", "pyramid sampling steps in mm, coarse to fine")
-        .argParser(numberList(0.1, 100))
-        .default([...REGISTER_DEFAULTS.levelsMm], REGISTER_DEFAULTS.levelsMm.join(",")),
-    )
-    .addOption(
-      new Option("--metal-hu <hu>", "CT metal threshold (HU)")
-        .argParser(numberIn(-1024, 1e6))
-        .default(REGISTER_DEFAULTS.metalHu),
-    )
-    .addOption(
-      new Option("--metal-margin-mm <mm>", "margin excluded around metal when the mask is on (mm)")
-        .argParser(numberIn(0, 100))
-        .default(REGISTER_DEFAULTS.metalMarginMm),
-    )
     .addOption(
       new Option("--seed <n>", "random seed (poses, artifacts, sampling)")
         .argParser(integerIn(0, 2 ** 31 - 1))

@@ -4,8 +4,9 @@
  * half-written file under a final name (rename is atomic within one file system, POSIX).
  */
 import { randomBytes } from "node:crypto";
-import { closeSync, fsyncSync, openSync, renameSync, rmSync, writeSync } from "node:fs";
-import { basename, dirname, join } from "node:path";
+import { closeSync, fsyncSync, openSync, realpathSync, renameSync, rmSync, writeSync } from "node:fs";
+import { basename, dirname, join, resolve } from "node:path";
+import { CoxaError } from "./errors.js";
 
 /** Temporary sibling path for `finalPath`; matches the `.coxa-tmp-*` pattern that cleanups remove. */
 export function tempPathFor(finalPath: string): string {
@@ -48,4 +49,34 @@ function writeAll(fd: number, data: Uint8Array): void {
 /** Write a JSON value (2-space indented, trailing newline) atomically. */
 export function writeJsonAtomic(finalPath: string, value: unknown): void {
   writeFileAtomic(finalPath, `${JSON.stringify(value, null, 2)}\n`);
+}
+
+/**
+ * Refuse outputs that would replace one of the inputs (compared after resolving links).
+ * @param inputs - input paths as given (undefined entries are skipped)
+ * @param outputs - output paths
+ * @throws CoxaError WOULD_OVERWRITE naming the input
+ */
+export function refuseOverwritingInputs(
+  inputs: readonly (string | undefined)[],
+  outputs: readonly string[],
+): void {
+  const real = (p: string) => {
+    try {
+      return realpathSync(p);
+    } catch {
+      return resolve(p);
+    }
+  };
+  const given = new Map<string, string>();
+  for (const p of inputs) if (p) given.set(real(p), p);
+  for (const out of outputs) {
+    const hit = given.get(real(out));
+    if (hit)
+      throw new CoxaError(
+        "WOULD_OVERWRITE",
+        "is an input and would be overwritten by an output; choose another --out",
+        hit,
+      );
+  }
 }

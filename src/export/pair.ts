@@ -28,6 +28,7 @@
 import { existsSync, mkdirSync, readdirSync, realpathSync, rmSync, statSync } from "node:fs";
 import { basename, join, resolve } from "node:path";
 import { writeFileAtomic, writeJsonAtomic } from "../common/atomic.js";
+import { csvField } from "../common/csv.js";
 import { CoxaError } from "../common/errors.js";
 import { sha256File } from "../common/hash.js";
 import type { ProgressFn } from "../common/progress.js";
@@ -41,7 +42,6 @@ import { Volume } from "../image/volume.js";
 import { axialAxis, bodyMaskCt, DEFAULT_BODY_HU } from "../masks/body.js";
 import { DEFAULT_METAL_HU, expandMetalMask, metalMask } from "../masks/metal.js";
 import { resampleOnto } from "../resample/resample.js";
-import { csvField } from "./csv.js";
 import {
   applyUnitWindow,
   type ChannelStats,

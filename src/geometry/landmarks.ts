@@ -15,6 +15,7 @@
  */
 import { existsSync, readFileSync, statSync } from "node:fs";
 import { writeFileAtomic } from "../common/atomic.js";
+import { type CsvRecord, CsvSyntaxError, parseCsv } from "../common/csv.js";
 import { CoxaError } from "../common/errors.js";
 
 /** One landmark: a label and a point in world RAS+ mm. */
@@ -41,75 +42,18 @@ export interface LandmarkFileOptions {
   lps?: boolean;
 }
 
-interface CsvRecord {
-  fields: string[];
-  quoted: boolean[];
-  line: number;
-}
-
 const COLUMNS = ["label", "x", "y", "z"] as const;
 const NUMBER = /^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$/;
 
-/** Split CSV text into records (RFC 4180). */
-function parseCsv(text: string, path: string): CsvRecord[] {
-  const records: CsvRecord[] = [];
-  let i = text.charCodeAt(0) === 0xfeff ? 1 : 0;
-  let line = 1;
-  const n = text.length;
-  while (i < n) {
-    const record: CsvRecord = { fields: [], quoted: [], line };
-    for (;;) {
-      // One field.
-      let value = "";
-      let quoted = false;
-      if (text[i] === '"') {
-        quoted = true;
-        const openLine = line;
-        i++;
-        for (;;) {
-          if (i >= n) {
-            throw new CoxaError("BAD_LANDMARKS", `line ${openLine}: quoted field is never closed`, path);
-          }
-          const ch = text[i];
-          if (ch === '"') {
-            if (text[i + 1] === '"') {
-              value += '"';
-              i += 2;
-              continue;
-            }
-            i++;
-            break;
-          }
-          if (ch === "\n") line++;
-          value += ch;
-          i++;
-        }
-        // Only spaces may follow a closing quote before the delimiter.
-        while (i < n && (text[i] === " " || text[i] === "\t")) i++;
-        if (i < n && text[i] !== "," && text[i] !== "\n" && text[i] !== "\r") {
-          throw new CoxaError("BAD_LANDMARKS", `line ${line}: unexpected text after a closing quote`, path);
-        }
-      } else {
-        const start = i;
-        while (i < n && text[i] !== "," && text[i] !== "\n" && text[i] !== "\r") i++;
-        value = text.slice(start, i);
-      }
-      record.fields.push(value);
-      record.quoted.push(quoted);
-      if (i < n && text[i] === ",") {
-        i++;
-        continue;
-      }
-      // End of record: CRLF, LF, lone CR or end of text.
-      if (i < n && text[i] === "\r") i++;
-      if (i < n && text[i] === "\n") i++;
-      line++;
-      break;
-    }
-    const blank = record.fields.length === 1 && !record.quoted[0] && record.fields[0].trim() === "";
-    if (!blank) records.push(record);
+/** Split CSV text into records (RFC 4180, src/common/csv.ts), syntax errors as BAD_LANDMARKS. */
+function parseLandmarkCsv(text: string, path: string): CsvRecord[] {
+  try {
+    return parseCsv(text);
+  } catch (err) {
+    if (err instanceof CsvSyntaxError)
+      throw new CoxaError("BAD_LANDMARKS", `line ${err.line}: ${err.message}`, path);
+    throw err;
   }
-  return records;
 }
 
 /**
@@ -133,7 +77,7 @@ export function readLandmarks(path: string, options: LandmarkFileOptions = {}): 
     if (err instanceof CoxaError) throw err;
     throw new CoxaError("BAD_LANDMARKS", `cannot be read (${(err as Error).message})`, path);
   }
-  const records = parseCsv(text, path);
+  const records = parseLandmarkCsv(text, path);
   if (records.length === 0)
     throw new CoxaError("BAD_LANDMARKS", "file is empty (expected header label,x,y,z)", path);
 

@@ -8,9 +8,9 @@
  * renamed (src/common/atomic.ts), so an interrupted run never leaves a half-written file under
  * a final name; no output may replace an input file.
  */
-import { existsSync, mkdirSync, realpathSync, statSync } from "node:fs";
+import { existsSync, mkdirSync, statSync } from "node:fs";
 import { join, resolve } from "node:path";
-import { writeJsonAtomic } from "../common/atomic.js";
+import { refuseOverwritingInputs, writeJsonAtomic } from "../common/atomic.js";
 import { CoxaError } from "../common/errors.js";
 import { sha256File } from "../common/hash.js";
 import type { ProgressFn } from "../common/progress.js";
@@ -23,8 +23,9 @@ import { buildTransformRecord, imageRef, writeTransform } from "../geometry/tran
 import { describeParameters, type TransformModel } from "../geometry/transform-model.js";
 import { DATATYPES } from "../image/datatypes.js";
 import type { Modality } from "../image/modality.js";
-import { type NiftiImage, readNifti, readNiftiAsync } from "../image/nifti-read.js";
+import { type NiftiImage, readNifti } from "../image/nifti-read.js";
 import { writeNiftiAsync } from "../image/nifti-write.js";
+import { readVolume3d } from "../image/read-volume.js";
 import type { Volume } from "../image/volume.js";
 import { readUserMask } from "../masks/user-mask.js";
 import type { MetricKind } from "../metrics/metric.js";
@@ -162,8 +163,8 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
   const t0 = performance.now();
   progress?.({ stage: "read", fraction: 0 });
   const [fixedImage, movingImage] = await Promise.all([
-    readImage3d(options.fixed),
-    readImage3d(options.moving),
+    readVolume3d(options.fixed),
+    readVolume3d(options.moving),
   ]);
   const fixedMask = options.fixedMask ? readUserMask(options.fixedMask) : undefined;
   const movingMask = options.movingMask ? readUserMask(options.movingMask) : undefined;
@@ -198,7 +199,19 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
     summary: join(outDir, "summary.json"),
     report: join(outDir, "report.html"),
   };
-  refuseOverwritingInputs(options, Object.values(files));
+  refuseOverwritingInputs(
+    [
+      options.fixed,
+      options.moving,
+      options.fixedMask,
+      options.movingMask,
+      options.fixedLandmarks,
+      options.movingLandmarks,
+      options.fixedLabels,
+      options.movingLabels,
+    ],
+    Object.values(files),
+  );
   if (existsSync(outDir) && !statSync(outDir).isDirectory()) {
     throw new CoxaError("BAD_ARGUMENT", "output path exists and is not a folder", options.out);
   }
@@ -554,43 +567,6 @@ function metricLabel(m: MetricKind): string {
       : "mean squared LNCC";
 }
 
-/** Read an image that must be 3-D with more than one voxel along each axis and usable intensities. */
-async function readImage3d(path: string): Promise<NiftiImage> {
-  const img = await readNiftiAsync(path);
-  const { shape, frames } = img.header;
-  if (shape.length < 3 || shape.slice(0, 3).some((n) => n < 2)) {
-    throw new CoxaError(
-      "BAD_DIMS",
-      `is not a 3-D image (shape ${shape.join(" x ")}); registration needs a volume`,
-      path,
-    );
-  }
-  if (frames > 1) {
-    throw new CoxaError(
-      "BAD_DIMS",
-      `holds ${frames} volumes (shape ${shape.join(" x ")}); pass a single 3-D volume`,
-      path,
-    );
-  }
-  // Two different finite values are enough: stop at the first pair.
-  const d = img.volume.data;
-  let first = Number.NaN;
-  let varied = false;
-  for (let i = 0; i < d.length; i++) {
-    const x = d[i];
-    if (x !== x || x === Infinity || x === -Infinity) continue;
-    if (first !== first) first = x;
-    else if (x !== first) {
-      varied = true;
-      break;
-    }
-  }
-  if (first !== first) throw new CoxaError("BAD_INPUT", "has no finite intensities", path);
-  if (!varied)
-    throw new CoxaError("BAD_INPUT", `has one intensity everywhere (${first}); nothing to register`, path);
-  return img;
-}
-
 function readLabels(path: string): Volume {
   const img = readNifti(path);
   if (img.header.shape.length < 3 || img.header.frames > 1) {
@@ -601,37 +577,6 @@ function readLabels(path: string): Volume {
     );
   }
   return img.volume;
-}
-
-/** Refuse outputs that would replace one of the input files. */
-function refuseOverwritingInputs(options: AlignOptions, outputs: string[]): void {
-  const inputs = [
-    options.fixed,
-    options.moving,
-    options.fixedMask,
-    options.movingMask,
-    options.fixedLandmarks,
-    options.movingLandmarks,
-    options.fixedLabels,
-    options.movingLabels,
-  ].filter((p): p is string => !!p);
-  const real = (p: string) => {
-    try {
-      return realpathSync(p);
-    } catch {
-      return resolve(p);
-    }
-  };
-  const inputSet = new Map(inputs.map((p) => [real(p), p]));
-  for (const out of outputs) {
-    const hit = inputSet.get(real(out));
-    if (hit)
-      throw new CoxaError(
-        "WOULD_OVERWRITE",
-        "is an input and would be overwritten by an output; choose another --out",
-        hit,
-      );
-  }
 }
 
 function imageSummary(

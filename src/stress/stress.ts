@@ -20,9 +20,9 @@
  * tested severity (the pipeline does not survive even the least shadowing tested; outputs are
  * still written), else 0.
  */
-import { existsSync, mkdirSync, realpathSync, statSync } from "node:fs";
+import { existsSync, mkdirSync, statSync } from "node:fs";
 import { join, resolve } from "node:path";
-import { writeFileAtomic, writeJsonAtomic } from "../common/atomic.js";
+import { refuseOverwritingInputs, writeFileAtomic, writeJsonAtomic } from "../common/atomic.js";
 import { CoxaError } from "../common/errors.js";
 import { sha256File } from "../common/hash.js";
 import type { ProgressFn } from "../common/progress.js";
@@ -35,9 +35,8 @@ import { type Mat4, toRows } from "../geometry/mat4.js";
 import { buildTransformRecord, imageRef, writeTransform } from "../geometry/transform-file.js";
 import type { TransformModel } from "../geometry/transform-model.js";
 import { detectModality } from "../image/modality.js";
-import { type NiftiImage, readNifti } from "../image/nifti-read.js";
 import { writeNifti } from "../image/nifti-write.js";
-import { intensityStats } from "../image/volume.js";
+import { readVolume3d } from "../image/read-volume.js";
 import type { MetricKind } from "../metrics/metric.js";
 import type { Side } from "../phantom/implant.js";
 import { REGISTER_DEFAULTS } from "../register/driver.js";
@@ -302,8 +301,10 @@ export async function runStress(options: StressOptions): Promise<StressResult> {
   if (options.movingLandmarks && !options.fixedLandmarks) {
     throw new CoxaError("BAD_ARGUMENT", "--moving-landmarks needs --fixed-landmarks");
   }
-  const fixedImage = readImage3d(options.fixed);
-  const movingImage = readImage3d(options.moving);
+  const [fixedImage, movingImage] = await Promise.all([
+    readVolume3d(options.fixed),
+    readVolume3d(options.moving),
+  ]);
   const fixed = fixedImage.volume;
   const moving = movingImage.volume;
   const modality = detectModality(fixed.data);
@@ -366,7 +367,17 @@ export async function runStress(options: StressOptions): Promise<StressResult> {
         join(outDir, imageFileName("mr", sev)),
       ])
     : [];
-  refuseOverwritingInputs(options, [files.json, files.csv, files.html, ...trialPaths, ...imagePaths]);
+  refuseOverwritingInputs(
+    [
+      options.fixed,
+      options.moving,
+      options.reference,
+      options.truth,
+      options.fixedLandmarks,
+      options.movingLandmarks,
+    ],
+    [files.json, files.csv, files.html, ...trialPaths, ...imagePaths],
+  );
   const base = prepareStressBase(fixed, moving, reference.matrix, {
     metalHu: settings.metalHu,
     virtualImplant: options.virtualImplant
@@ -643,57 +654,4 @@ function writeTrialTransform(
       moving: images.moving,
     }),
   );
-}
-
-/**
- * Read an image that must be one 3-D volume with more than one voxel along each axis and more
- * than one finite intensity (the same checks coxa align makes).
- */
-function readImage3d(path: string): NiftiImage {
-  const img = readNifti(path);
-  const { shape, frames } = img.header;
-  if (shape.length < 3 || shape.slice(0, 3).some((n) => n < 2)) {
-    throw new CoxaError(
-      "BAD_DIMS",
-      `is not a 3-D image (shape ${shape.join(" x ")}); stress needs a volume`,
-      path,
-    );
-  }
-  if (frames > 1) {
-    throw new CoxaError("BAD_DIMS", `holds ${frames} volumes; pass a single 3-D volume`, path);
-  }
-  const st = intensityStats(img.volume.data);
-  if (st.finite === 0) throw new CoxaError("BAD_INPUT", "has no finite intensities", path);
-  if (st.min === st.max) throw new CoxaError("BAD_INPUT", `has one intensity everywhere (${st.min})`, path);
-  return img;
-}
-
-/** Refuse outputs that would replace one of the input files. */
-function refuseOverwritingInputs(options: StressOptions, outputs: string[]): void {
-  const inputs = [
-    options.fixed,
-    options.moving,
-    options.reference,
-    options.truth,
-    options.fixedLandmarks,
-    options.movingLandmarks,
-  ].filter((p): p is string => !!p);
-  const real = (p: string) => {
-    try {
-      return realpathSync(p);
-    } catch {
-      return resolve(p);
-    }
-  };
-  const inputSet = new Map(inputs.map((p) => [real(p), p]));
-  for (const out of outputs) {
-    const hit = inputSet.get(real(out));
-    if (hit) {
-      throw new CoxaError(
-        "WOULD_OVERWRITE",
-        "is an input and would be overwritten by an output; choose another --out",
-        hit,
-      );
-    }
-  }
 }

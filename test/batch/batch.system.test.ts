@@ -13,7 +13,7 @@ import { appendFileSync, existsSync, readdirSync, readFileSync, writeFileSync } 
 import { join } from "node:path";
 import { beforeAll, describe, expect, it } from "vitest";
 import { checkComplete, type DoneMarker, hashInputs } from "../../src/batch/marker.js";
-import { parseCsv } from "../../src/export/csv.js";
+import { parseCsv } from "../../src/common/csv.js";
 import { writeDemoPhantom } from "../export/phantom-pair.js";
 import { tempDir } from "../helpers/tmp.js";
 

@@ -11,7 +11,7 @@ import { runBatch, summarizeBatch } from "../../src/batch/batch.js";
 import type { CaseTask } from "../../src/batch/case.js";
 import { checkComplete, type DoneMarker, hashInputs, settingsHash } from "../../src/batch/marker.js";
 import { runInProcesses } from "../../src/batch/pool.js";
-import { parseCsv } from "../../src/export/csv.js";
+import { parseCsv } from "../../src/common/csv.js";
 import { writeSyntheticPair } from "../export/pair-fixture.js";
 import { tempDir } from "../helpers/tmp.js";
 import { makeStandIn } from "./stand-in.js";

@@ -8,8 +8,8 @@
 import { existsSync, readdirSync, readFileSync, writeFileSync } from "node:fs";
 import { join } from "node:path";
 import { describe, expect, it } from "vitest";
+import { parseCsv } from "../../src/common/csv.js";
 import { sha256File } from "../../src/common/hash.js";
-import { parseCsv } from "../../src/export/csv.js";
 import { exportPair } from "../../src/export/pair.js";
 import { transformPoint } from "../../src/geometry/mat4.js";
 import { transformHash } from "../../src/geometry/transform-file.js";

@@ -1,6 +1,6 @@
 /** CSV reading and writing against RFC 4180's rules and its examples (section 2). */
 import { describe, expect, it } from "vitest";
-import { CsvSyntaxError, csvField, formatCsv, parseCsv } from "../../src/export/csv.js";
+import { CsvSyntaxError, csvField, formatCsv, parseCsv } from "../../src/common/csv.js";
 
 describe("parseCsv (RFC 4180)", () => {
   it("reads the RFC's examples: CRLF records, quoted fields with commas, doubled quotes and line breaks", () => {
