@@ -104,6 +104,12 @@ export const REGISTER_DEFAULTS = {
   seed: 1,
   /** Samples by level index from the coarsest (common practice, no source; tuned on the phantom). */
   samples: [4000, 12000, 30000, 40000],
+  /**
+   * Powell's line-search and step tolerances in scaled units (1 unit moves points at the body's
+   * RMS radius by about the level step / 2 mm, so 0.05 on the 2 mm level is ~0.05 mm).
+   */
+  lineToleranceMm: 0.05,
+  stepToleranceMm: 0.03,
   /** Powell budget per level (evaluations). */
   maxEvaluationsPerLevel: 1500,
   /** Margin around the other image's box when restricting the sampled mask (mm). */
@@ -520,8 +526,8 @@ export function registerImages(
     const r = powell(objective, params, {
       scales: scaleBy(parameterScales(model, radiusMm), levelsMm[l] / 2),
       maxEvaluations: budget,
-      lineTolerance: 0.02,
-      tolerances: { x: 0.01, fRelative: 1e-6 },
+      lineTolerance: o.lineToleranceMm,
+      tolerances: { x: o.stepToleranceMm, fRelative: 1e-6 },
       onIteration: (info) => {
         progress?.({
           stage: stageName,
@@ -605,8 +611,8 @@ export function registerImages(
       const r = powell(objective, params, {
         scales: scaleBy(parameterScales(model, radiusMm), levelsMm[finest] / 8),
         maxEvaluations: budget,
-        lineTolerance: 0.02,
-        tolerances: { x: 0.01, fRelative: 1e-6 },
+        lineTolerance: o.lineToleranceMm,
+        tolerances: { x: o.stepToleranceMm, fRelative: 1e-6 },
         onIteration: (info) =>
           progress?.({ stage: stageName, fraction: Math.min(0.99, info.evaluations / budget) }),
       });
