@@ -38,6 +38,8 @@ import { mrSignalVoid } from "./mr-void.js";
 export interface LevelMaskOptions {
   /** Modality of the image; detected from the intensities when absent (src/image/modality.ts). */
   modality?: Modality;
+  /** Why `modality` holds (e.g. a detection made by the caller); default "as given". */
+  modalityReason?: string;
   /** Build and exclude the metal mask (CT only); default true (`--no-metal-mask` sets false). */
   metalMask?: boolean;
   /** Metal threshold (HU); default 2500. */
@@ -100,7 +102,7 @@ export function prepareLevelMasks(
 ): ImageMasks {
   let modality = options.modality;
   let modalityReason: string;
-  if (modality) modalityReason = `modality ${modality} as given`;
+  if (modality) modalityReason = options.modalityReason ?? `modality ${modality} as given`;
   else {
     const evidence = detectModality(volume.data);
     modality = evidence.modality;

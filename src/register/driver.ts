@@ -30,7 +30,7 @@ import {
   parametersToMatrix,
   type TransformModel,
 } from "../geometry/transform-model.js";
-import type { Modality } from "../image/modality.js";
+import { detectModality, type Modality } from "../image/modality.js";
 import type { Volume } from "../image/volume.js";
 import { type ImageMasks, prepareLevelMasks } from "../masks/level-masks.js";
 import { createMetric, type Metric, type MetricKind } from "../metrics/metric.js";
@@ -103,7 +103,7 @@ export const REGISTER_DEFAULTS = {
   sampleFrom: "auto" as "auto" | "fixed" | "moving" | "coarser",
   seed: 1,
   /** Samples by level index from the coarsest (common practice, no source; tuned on the phantom). */
-  samples: [4000, 12000, 30000, 40000],
+  samples: [4000, 12000, 20000, 30000],
   /**
    * Powell's line-search and step tolerances in scaled units (1 unit moves points at the body's
    * RMS radius by about the level step / 2 mm, so 0.05 on the 2 mm level is ~0.05 mm).
@@ -225,23 +225,36 @@ export function registerImages(
 
   t0 = performance.now();
   progress?.({ stage: "masks", fraction: 0 });
-  const fMasks = prepareLevelMasks(fixed, fPyr, {
-    modality: o.fixedModality,
-    metalMask: o.metalMask,
-    metalHu: o.metalHu,
-    metalMarginMm: o.metalMarginMm,
-    userMask: o.fixedMask,
-    userMaskName: o.fixedMaskName,
-  });
-  const mMasks = prepareLevelMasks(moving, mPyr, {
-    modality: o.movingModality,
-    metalMask: o.metalMask,
-    metalHu: o.metalHu,
-    metalMarginMm: o.metalMarginMm,
-    userMask: o.movingMask,
-    userMaskName: o.movingMaskName,
-    mrVoid: o.mrVoid && (fMasks.metal?.metalVoxels ?? 0) > 0,
-  });
+  // The CT-like image's masks first: when it shows metal, the MR's signal void is excluded too
+  // (either image may be the CT).
+  const fixedModality = o.fixedModality ?? detectModality(fixed.data);
+  const movingModality = o.movingModality ?? detectModality(moving.data);
+  const masksOf = (which: "fixed" | "moving", otherHasMetal: boolean) => {
+    const isFixed = which === "fixed";
+    const given = isFixed ? o.fixedModality : o.movingModality;
+    const detected = isFixed ? fixedModality : movingModality;
+    return prepareLevelMasks(isFixed ? fixed : moving, isFixed ? fPyr : mPyr, {
+      modality: typeof detected === "string" ? detected : detected.modality,
+      modalityReason: given ? undefined : typeof detected === "string" ? undefined : detected.reason,
+      metalMask: o.metalMask,
+      metalHu: o.metalHu,
+      metalMarginMm: o.metalMarginMm,
+      userMask: isFixed ? o.fixedMask : o.movingMask,
+      userMaskName: isFixed ? o.fixedMaskName : o.movingMaskName,
+      mrVoid: o.mrVoid && otherHasMetal,
+    });
+  };
+  const hasMetal = (m: ImageMasks) => (m.metal?.metalVoxels ?? 0) > 0;
+  const movingFirst = modalityName(movingModality) === "ct" && modalityName(fixedModality) !== "ct";
+  let fMasks: ImageMasks;
+  let mMasks: ImageMasks;
+  if (movingFirst) {
+    mMasks = masksOf("moving", false);
+    fMasks = masksOf("fixed", hasMetal(mMasks));
+  } else {
+    fMasks = masksOf("fixed", false);
+    mMasks = masksOf("moving", hasMetal(fMasks));
+  }
   timings.masks = seconds(t0);
   const L = levelsMm.length;
   const finest = L - 1;
@@ -653,6 +666,11 @@ export function registerImages(
     movingPyramid: mPyr,
     timings,
   };
+}
+
+/** The modality name of a detection or an override. */
+function modalityName(m: Modality | ReturnType<typeof detectModality>): Modality {
+  return typeof m === "string" ? m : m.modality;
 }
 
 function stripUndefined<T extends object>(o: T): Partial<T> {
