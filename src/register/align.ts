@@ -15,7 +15,7 @@ import { CoxaError } from "../common/errors.js";
 import { sha256File } from "../common/hash.js";
 import type { ProgressFn } from "../common/progress.js";
 import { softwareInfo } from "../common/version.js";
-import type { WorkerPool } from "../common/workers.js";
+import { defaultThreads, type WorkerPool } from "../common/workers.js";
 import { evaluateLandmarks, landmarkEvaluationToJson } from "../geometry/landmark-evaluation.js";
 import { type LandmarkPairs, pairLandmarks, readLandmarks } from "../geometry/landmarks.js";
 import { inverse, toRows, transformPoint } from "../geometry/mat4.js";
@@ -299,6 +299,7 @@ async function alignValidated(options: AlignOptions, v: Validated): Promise<Alig
     init: options.init,
     landmarks: pairs,
     seed,
+    threads: options.threads ?? defaultThreads(),
     onProgress: progress,
   });
   timing.register = seconds(t0);
@@ -481,7 +482,9 @@ async function alignValidated(options: AlignOptions, v: Validated): Promise<Alig
         modalityReason: mm.modalityReason,
       },
       movingOnFixed,
-      metalMask: metal,
+      metalMask: metal?.mask,
+      metalVoxels: metal?.voxels,
+      pointsMm: metal ? { implant: metal.implantMm, otherHip: metal.otherHipMm } : undefined,
       metalHu: options.metalHu ?? REGISTER_DEFAULTS.metalHu,
       landmarks: pairs
         ? pairs.labels.map((label, i) => {
@@ -607,16 +610,55 @@ function maskSummary(m: RegistrationResult["fixedMasks"], user: string | undefin
   };
 }
 
-/** The metal (>= the metal threshold, undilated) on the fixed grid when the fixed image is CT, for the report outline. */
-function metalOnFixedGrid(reg: RegistrationResult, fixed: Volume, metalHu: number): Uint8Array | undefined {
+/** The metal of a CT fixed image for the report: mask, voxel count and the two hips' points. */
+interface ReportMetal {
+  mask: Uint8Array;
+  voxels: number;
+  implantMm: [number, number, number];
+  otherHipMm: [number, number, number];
+}
+
+/**
+ * The metal (>= the metal threshold, undilated) on the fixed grid when the fixed image is CT,
+ * with the points the report slices through: the centroid of the metal on the side (of the body
+ * centre's x) that holds more of it, and either the other side's metal centroid (both hips
+ * implanted) or the implant point mirrored across the body's mid-sagittal plane x = centre.
+ * Computed once here, so the report need not scan the volume again.
+ */
+function metalOnFixedGrid(reg: RegistrationResult, fixed: Volume, metalHu: number): ReportMetal | undefined {
   if (reg.fixedMasks.modality !== "ct" || !reg.fixedMasks.metalApplied) return undefined;
-  const out = new Uint8Array(fixed.count);
+  const [nx, ny, nz] = fixed.dims;
+  const m = fixed.indexToWorld;
+  const cx = reg.centerMm[0];
+  const mask = new Uint8Array(fixed.count);
   const d = fixed.data;
-  let any = 0;
-  for (let i = 0; i < out.length; i++) {
-    const v = d[i] >= metalHu ? 1 : 0;
-    out[i] = v;
-    any |= v;
+  // Per side (world x below / above the centre): count and sum of world positions.
+  const n = [0, 0];
+  const sum = [
+    [0, 0, 0],
+    [0, 0, 0],
+  ];
+  for (let k = 0, q = 0; k < nz; k++) {
+    for (let j = 0; j < ny; j++) {
+      for (let i = 0; i < nx; i++, q++) {
+        if (!(d[q] >= metalHu)) continue;
+        mask[q] = 1;
+        const x = m[0] * i + m[1] * j + m[2] * k + m[3];
+        const side = x < cx ? 0 : 1;
+        n[side]++;
+        sum[side][0] += x;
+        sum[side][1] += m[4] * i + m[5] * j + m[6] * k + m[7];
+        sum[side][2] += m[8] * i + m[9] * j + m[10] * k + m[11];
+      }
+    }
   }
-  return any ? out : undefined;
+  const voxels = n[0] + n[1];
+  if (voxels === 0) return undefined;
+  const main = n[0] >= n[1] ? 0 : 1;
+  const other = 1 - main;
+  const centroid = (s: number) => sum[s].map((v) => v / n[s]) as [number, number, number];
+  const implantMm = centroid(main);
+  const otherHipMm: [number, number, number] =
+    n[other] >= 0.1 * n[main] ? centroid(other) : [2 * cx - implantMm[0], implantMm[1], implantMm[2]];
+  return { mask, voxels, implantMm, otherHipMm };
 }

@@ -35,6 +35,7 @@ import type { Volume } from "../image/volume.js";
 import { type ImageMasks, prepareLevelMasks } from "../masks/level-masks.js";
 import { createMetric, type Metric, type MetricKind } from "../metrics/metric.js";
 import { robustRange } from "../metrics/sampler.js";
+import { MetricSplitter } from "../metrics/split.js";
 import { powell } from "../optimize/powell.js";
 import { buildPyramid, type Pyramid } from "../pyramid/pyramid.js";
 import { type InitialTransform, type InitMethod, initialTransform } from "./initialise.js";
@@ -80,6 +81,11 @@ export interface RegisterOptions {
   bins?: number;
   /** Which image the level metrics sample (default auto: the one with less to sample). */
   sampleFrom?: "auto" | "fixed" | "moving" | "coarser";
+  /**
+   * Threads for metric evaluation: 2 or more shares large sample sets with a helper thread
+   * (src/metrics/split.ts); default 1 (callers that run several registrations at once keep 1).
+   */
+  threads?: number;
   /** Exclude the estimated MR signal void when the other image shows metal (default true). */
   mrVoid?: boolean;
   /** Repeat the finest level sampling the other image and compare (default true). */
@@ -208,12 +214,28 @@ export function registerImages(
   moving: Volume,
   options: RegisterOptions = {},
 ): RegistrationResult {
-  const o = { ...REGISTER_DEFAULTS, ...stripUndefined(options) };
-  if (options.samplesPerLevel) o.samples = [...options.samplesPerLevel];
+  const o = resolveRegisterOptions(options);
   const levelsMm = [...o.levelsMm];
   if (levelsMm.length === 0) throw new CoxaError("BAD_ARGUMENT", "at least one pyramid level is needed");
-  const progress = options.onProgress;
   const timings = { pyramid: 0, masks: 0, search: 0, optimise: 0, inverse: 0 };
+  const splitter = (options.threads ?? 1) > 1 ? new MetricSplitter() : undefined;
+  try {
+    return registerWith(fixed, moving, options, o, levelsMm, timings, splitter);
+  } finally {
+    void splitter?.close();
+  }
+}
+
+function registerWith(
+  fixed: Volume,
+  moving: Volume,
+  options: RegisterOptions,
+  o: ReturnType<typeof resolveRegisterOptions>,
+  levelsMm: number[],
+  timings: RegistrationResult["timings"],
+  splitter: MetricSplitter | undefined,
+): RegistrationResult {
+  const progress = options.onProgress;
 
   let t0 = performance.now();
   progress?.({ stage: "pyramid", fraction: 0 });
@@ -389,6 +411,7 @@ export function registerImages(
       samples: count,
       seed,
       bins: o.bins,
+      splitter,
       // The sampled image's range comes from its own region (computed by createMetric); the
       // other image's from its whole mask, the same on every call of a level.
       movingRange: rangeOf(level, sampled === "fixed" ? "moving" : "fixed"),
@@ -434,6 +457,7 @@ export function registerImages(
             samples,
             seed,
             bins: o.bins,
+            splitter,
             fixedRange: rangeOf(0, "fixed"),
             movingRange: rangeOf(0, "moving"),
           })
@@ -445,6 +469,7 @@ export function registerImages(
             samples,
             seed,
             bins: o.bins,
+            splitter,
             fixedRange: rangeOf(0, "moving"),
             movingRange: rangeOf(0, "fixed"),
           });
@@ -671,6 +696,13 @@ export function registerImages(
 /** The modality name of a detection or an override. */
 function modalityName(m: Modality | ReturnType<typeof detectModality>): Modality {
   return typeof m === "string" ? m : m.modality;
+}
+
+/** Options with the defaults of REGISTER_DEFAULTS filled in. */
+function resolveRegisterOptions(options: RegisterOptions) {
+  const o = { ...REGISTER_DEFAULTS, ...stripUndefined(options) };
+  if (options.samplesPerLevel) o.samples = [...options.samplesPerLevel];
+  return o;
 }
 
 function stripUndefined<T extends object>(o: T): Partial<T> {

@@ -103,6 +103,8 @@ export interface AlignReportInput {
   movingOnFixed: Volume;
   /** Metal mask on the fixed grid (non-zero = metal), when one was used. */
   metalMask?: Uint8Array;
+  /** Voxels of `metalMask`, when the caller has counted them already. */
+  metalVoxels?: number;
   /** Metal threshold used for the mask, HU. */
   metalHu?: number;
   /** Points to slice through (RAS mm, fixed world); missing ones are chosen from the metal mask. */
@@ -128,9 +130,9 @@ export interface AlignReportInput {
   };
   /** Seconds per stage (e.g. read, register, resample, report); "total" when known. */
   timings: Readonly<Record<string, number>>;
-  /** Share of fixed voxels whose mapped position falls inside the moving image, 0..1. */
+  /** Share of the metric's samples that landed inside the other image's body, 0..1. */
   overlapFraction?: number;
-  /** Distance (mm) a point moves when mapped forward and back with the stored transforms. */
+  /** Largest disagreement (mm) in the implant region with the answer found sampling the other image. */
   inverseConsistencyMm?: number;
   /** More labelled numbers or sentences for the quality section. */
   summaryExtra?: readonly (readonly [string, string | number])[];
@@ -434,15 +436,18 @@ function qualitySection(input: AlignReportInput): string {
   ];
   if (input.metalHu !== undefined) pairs.push(["metal threshold (HU)", input.metalHu]);
   if (input.metalMask) {
-    let count = 0;
-    for (let p = 0; p < input.metalMask.length; p++) if (input.metalMask[p] !== 0) count++;
+    let count = input.metalVoxels;
+    if (count === undefined) {
+      count = 0;
+      for (let p = 0; p < input.metalMask.length; p++) if (input.metalMask[p] !== 0) count++;
+    }
     pairs.push(["metal-mask voxels (fixed grid)", count]);
   }
   for (const [k, v] of input.summaryExtra ?? []) pairs.push([k, v]);
   return section(
     "quality",
     "Consistency and overlap",
-    "<p>Inverse consistency: how far a point moves when it is mapped with the transform and back with the stored inverse. Overlap: share of the fixed image whose mapped position falls inside the moving image.</p>" +
+    "<p>Inverse consistency: the largest distance, over the implant region (the metal's box grown by 30 mm), between this transform and the one found when the finest level is registered again sampling the other image. Overlap: share of the samples (inside the sampled image's body, within the other image's field of view) whose mapped position lands inside the other image's body.</p>" +
       renderKeyValueTable(pairs),
   );
 }
