@@ -124,12 +124,7 @@ export function prepareLevelMasks(
   let bodies: (Uint8Array | undefined)[] = levels.map(() => undefined);
   let mrThreshold: number | undefined;
   if (options.body ?? true) {
-    const target = options.bodyGridMm ?? 8;
-    let bi = 0;
-    for (let l = 1; l < levels.length; l++) {
-      if (Math.abs(Math.log(levels[l].stepMm / target)) < Math.abs(Math.log(levels[bi].stepMm / target)))
-        bi = l;
-    }
+    const bi = nearestLevel(levels, options.bodyGridMm ?? 8);
     const src = levels[bi].volume;
     let body: Uint8Array;
     let threshold: number;
@@ -150,15 +145,22 @@ export function prepareLevelMasks(
     bodies = levels.map((lv, l) => (l === bi ? body : refineBody(bands, src, lv.volume, threshold)));
   }
   options.onProgress?.({ stage: "masks", fraction: 0.7 });
+  // The MR void, like the body, is found once (on the level nearest bodyGridMm: it is a thick
+  // region, so that resolution suffices) and carried to the other levels by nearest neighbour.
+  let voids: Uint8Array[] | undefined;
+  if (wantMetal && modality === "mr" && options.mrVoid) {
+    const vi = nearestLevel(levels, VOID_GRID_MM);
+    const src = levels[vi].volume;
+    const mask = mrSignalVoid(src, { body: bodies[vi], threshold: mrThreshold }).mask;
+    voids = levels.map((lv, l) => (l === vi ? mask : transfer(mask, src, lv.volume)));
+  }
   const out: LevelMasks[] = [];
   for (let l = 0; l < levels.length; l++) {
     const lv = levels[l].volume;
     let excluded: Uint8Array | undefined;
     if (metal?.box) excluded = metalOnLevel(metal.mask, metal.box, volume.dims, levels[l].factors);
     else if (metal) excluded = new Uint8Array(lv.count);
-    if (wantMetal && modality === "mr" && options.mrVoid) {
-      excluded = mrSignalVoid(lv, { body: bodies[l], threshold: mrThreshold }).mask;
-    }
+    if (voids) excluded = voids[l];
     let user: Uint8Array | undefined;
     if (options.userMask) {
       user = resampleOntoSync(options.userMask, lv, identity(), {
@@ -239,6 +241,19 @@ function refineBody(bands: Uint8Array, from: Volume, to: Volume, threshold: numb
 }
 
 /** Nearest-neighbour transfer of a 0/1 mask between two grids of the same world. */
+/** Step (mm) of the level the MR signal void is estimated on. */
+const VOID_GRID_MM = 4;
+
+/** Index of the level whose step is closest (in ratio) to `targetMm`. */
+function nearestLevel(levels: readonly { stepMm: number }[], targetMm: number): number {
+  let best = 0;
+  for (let l = 1; l < levels.length; l++) {
+    if (Math.abs(Math.log(levels[l].stepMm / targetMm)) < Math.abs(Math.log(levels[best].stepMm / targetMm)))
+      best = l;
+  }
+  return best;
+}
+
 function transfer(mask: Uint8Array, from: Volume, to: Volume): Uint8Array {
   const src = from.withData(mask);
   return resampleOntoSync(src, to, identity(), { interp: "nearest", datatype: "uint8", fill: 0 }).volume

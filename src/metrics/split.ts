@@ -80,8 +80,11 @@ export class MetricSplitter {
 
   /** Wait for request `seq`; returns the helper's counted samples. */
   finish(seq: number): number {
-    while (Atomics.load(this.ctrl, DONE) !== seq) {
-      const r = Atomics.wait(this.ctrl, DONE, Atomics.load(this.ctrl, DONE), 10_000);
+    for (;;) {
+      // Wait on the value just seen: if the helper finishes in between, wait returns at once.
+      const seen = Atomics.load(this.ctrl, DONE);
+      if (seen === seq) break;
+      const r = Atomics.wait(this.ctrl, DONE, seen, 10_000);
       if (this.failed)
         throw new CoxaError("WORKER_FAILED", `metric helper thread failed: ${this.failed.message}`);
       if (r === "timed-out" && Atomics.load(this.ctrl, DONE) !== seq) {
