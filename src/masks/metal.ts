@@ -15,10 +15,10 @@
  * is a crop of that grid (`box`), expandMetalMask gives the whole grid.
  */
 import { CoxaError } from "../common/errors.js";
-import type { VoxelArray } from "../image/datatypes.js";
 import type { Dims, Volume } from "../image/volume.js";
 import type { HighValues } from "../pyramid/blocks.js";
 import { removeSmallComponents, type VoxelBox } from "./components.js";
+import { thresholdBounds } from "./morphology.js";
 
 /** Default metal threshold in HU (design.md). */
 export const DEFAULT_METAL_HU = 2500;
@@ -151,34 +151,6 @@ export function expandMetalMask(metal: MetalMask, dims: Dims): Uint8Array {
       out.set(metal.mask.subarray(src, src + cx), box.min[0] + dims[0] * (j + dims[1] * k));
     }
   return out;
-}
-
-/** Voxel box of the voxels >= threshold (one read-only pass), or undefined. */
-function thresholdBounds(data: VoxelArray, dims: Dims, threshold: number): VoxelBox | undefined {
-  const [nx, ny, nz] = dims;
-  const min: [number, number, number] = [nx, ny, nz];
-  const max: [number, number, number] = [-1, -1, -1];
-  for (let k = 0; k < nz; k++)
-    for (let j = 0; j < ny; j++) {
-      const row = nx * (j + ny * k);
-      let first = -1;
-      let last = -1;
-      for (let i = 0; i < nx; i++) {
-        if (data[row + i] >= threshold) {
-          if (first < 0) first = i;
-          last = i;
-        }
-      }
-      if (first < 0) continue;
-      if (first < min[0]) min[0] = first;
-      if (last > max[0]) max[0] = last;
-      if (j < min[1]) min[1] = j;
-      if (j > max[1]) max[1] = j;
-      if (k < min[2]) min[2] = k;
-      if (k > max[2]) max[2] = k;
-    }
-  if (max[0] < 0) return undefined;
-  return { min, max: [max[0] + 1, max[1] + 1, max[2] + 1] };
 }
 
 /**

@@ -16,6 +16,7 @@
  * a 26-connected foreground), as scipy.ndimage.binary_fill_holes does by default.
  */
 import { CoxaError } from "../common/errors.js";
+import type { VoxelArray } from "../image/datatypes.js";
 import type { Dims } from "../image/volume.js";
 import type { VoxelBox } from "./components.js";
 
@@ -23,6 +24,11 @@ const FAR = 1e20;
 
 /** Bounding box of the nonzero voxels, or undefined for an empty mask. */
 export function maskBounds(mask: Uint8Array, dims: Dims): VoxelBox | undefined {
+  return thresholdBounds(mask, dims, 1);
+}
+
+/** Voxel box of the voxels >= threshold (one read-only pass), or undefined. */
+export function thresholdBounds(data: VoxelArray, dims: Dims, threshold: number): VoxelBox | undefined {
   const [nx, ny, nz] = dims;
   const min: [number, number, number] = [nx, ny, nz];
   const max: [number, number, number] = [-1, -1, -1];
@@ -32,7 +38,7 @@ export function maskBounds(mask: Uint8Array, dims: Dims): VoxelBox | undefined {
       let first = -1;
       let last = -1;
       for (let i = 0; i < nx; i++) {
-        if (mask[row + i] !== 0) {
+        if (data[row + i] >= threshold) {
           if (first < 0) first = i;
           last = i;
         }

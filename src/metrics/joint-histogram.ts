@@ -1,6 +1,8 @@
 /**
  * The joint-histogram accumulation shared by the histogram metrics (metric.ts) and their helper
- * thread (split-worker.ts). Conventions as in metric.ts: `m` maps fixed WORLD mm to MOVING voxel
+ * thread (split-worker.ts). The trilinear interpolation is written out inline here, as in the LNCC
+ * loop and src/resample/slab.ts, on purpose: a call per sample costs more than the arithmetic.
+ * Conventions as in metric.ts: `m` maps fixed WORLD mm to MOVING voxel
  * index (row-major 4x4); the moving mask is a bitset (bit q & 7 of byte q >> 3).
  */
 
