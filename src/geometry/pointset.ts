@@ -120,21 +120,7 @@ export function fitPointSets(
 
   // Rank of the source configuration from its own spread (the cross-covariance can also
   // drop rank for a degenerate target, which a least-squares fit tolerates).
-  const inertia = new Float64Array(9);
-  for (let i = 0; i < n; i++) {
-    const dx = sourceMm[3 * i] - msx;
-    const dy = sourceMm[3 * i + 1] - msy;
-    const dz = sourceMm[3 * i + 2] - msz;
-    inertia[0] += dx * dx;
-    inertia[1] += dx * dy;
-    inertia[2] += dx * dz;
-    inertia[4] += dy * dy;
-    inertia[5] += dy * dz;
-    inertia[8] += dz * dz;
-  }
-  inertia[3] = inertia[1];
-  inertia[6] = inertia[2];
-  inertia[7] = inertia[5];
+  const inertia = scatterMatrix(sourceMm, n, msx, msy, msz);
   const ev = new Float64Array(3);
   symmetricEigen(inertia, 3, ev, new Float64Array(9));
   const sorted = Array.from(ev).sort((a, b) => b - a);
@@ -282,21 +268,7 @@ export function predictedTre(
   mx /= n;
   my /= n;
   mz /= n;
-  const k = new Float64Array(9);
-  for (let i = 0; i < n; i++) {
-    const dx = fiducialsMm[3 * i] - mx;
-    const dy = fiducialsMm[3 * i + 1] - my;
-    const dz = fiducialsMm[3 * i + 2] - mz;
-    k[0] += dx * dx;
-    k[1] += dx * dy;
-    k[2] += dx * dz;
-    k[4] += dy * dy;
-    k[5] += dy * dz;
-    k[8] += dz * dz;
-  }
-  k[3] = k[1];
-  k[6] = k[2];
-  k[7] = k[5];
+  const k = scatterMatrix(fiducialsMm, n, mx, my, mz);
   const values = new Float64Array(3);
   const axes = new Float64Array(9); // column j = principal axis j
   symmetricEigen(k, 3, values, axes);
@@ -353,4 +325,33 @@ export function estimateFle(freMm: number, count: number): number {
   if (!(count >= 3))
     throw new CoxaError("BAD_ARGUMENT", `an FLE estimate needs at least 3 fiducials, got ${count}`);
   return freMm / Math.sqrt(1 - 2 / count);
+}
+
+/**
+ * Scatter matrix sum_i (p_i - c)(p_i - c)^T (3x3 row-major) of n points about the centre c.
+ * @param pointsMm - flat xyz, mm
+ */
+function scatterMatrix(
+  pointsMm: ArrayLike<number>,
+  n: number,
+  cx: number,
+  cy: number,
+  cz: number,
+): Float64Array {
+  const out = new Float64Array(9);
+  for (let i = 0; i < n; i++) {
+    const dx = pointsMm[3 * i] - cx;
+    const dy = pointsMm[3 * i + 1] - cy;
+    const dz = pointsMm[3 * i + 2] - cz;
+    out[0] += dx * dx;
+    out[1] += dx * dy;
+    out[2] += dx * dz;
+    out[4] += dy * dy;
+    out[5] += dy * dz;
+    out[8] += dz * dz;
+  }
+  out[3] = out[1];
+  out[6] = out[2];
+  out[7] = out[5];
+  return out;
 }

@@ -15,7 +15,7 @@ import { CoxaError } from "../common/errors.js";
 import { sha256File } from "../common/hash.js";
 import type { ProgressFn } from "../common/progress.js";
 import { softwareInfo } from "../common/version.js";
-import { defaultThreads, type WorkerPool } from "../common/workers.js";
+import { defaultThreads } from "../common/workers.js";
 import { evaluateLandmarks, landmarkEvaluationToJson } from "../geometry/landmark-evaluation.js";
 import { type LandmarkPairs, pairLandmarks, readLandmarks } from "../geometry/landmarks.js";
 import { inverse, toRows, transformPoint } from "../geometry/mat4.js";
@@ -160,7 +160,7 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
   const progress = options.onProgress;
 
   // ---- Read and validate everything first ----
-  const t0 = performance.now();
+  let t0 = performance.now();
   progress?.({ stage: "read", fraction: 0 });
   const [fixedImage, movingImage] = await Promise.all([
     readVolume3d(options.fixed),
@@ -220,325 +220,271 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
   // Start the resampling threads now; they are ready when registration ends.
   const pool = createResamplePool(options.threads);
   try {
-    return await alignValidated(options, {
-      fixedImage,
-      movingImage,
-      fixedSha,
-      movingSha,
+    const fixed = fixedImage.volume;
+    const moving = movingImage.volume;
+    const seed = options.seed ?? REGISTER_DEFAULTS.seed;
+
+    // ---- Register ----
+    t0 = performance.now();
+    const reg = registerOrExplain(options, fixed, moving, {
+      model: options.model,
+      metric: options.metric,
+      levelsMm: options.levelsMm,
+      metalMask: options.metalMask,
+      metalHu: options.metalHu,
+      metalMarginMm: options.metalMarginMm,
+      fixedModality: options.fixedModality,
+      movingModality: options.movingModality,
       fixedMask,
+      fixedMaskName: options.fixedMask,
       movingMask,
-      pairs,
-      fixedLabels,
-      movingLabels,
-      files,
-      outDir,
-      timing,
-      tStart,
-      pool,
+      movingMaskName: options.movingMask,
+      init: options.init,
+      landmarks: pairs,
+      seed,
+      threads: options.threads ?? defaultThreads(),
+      onProgress: progress,
     });
+    timing.register = seconds(t0);
+    for (const [k, v] of Object.entries(reg.timings)) timing[`register_${k}`] = v;
+
+    // ---- Measure ----
+    t0 = performance.now();
+    const landmarkEval = pairs ? evaluateLandmarks(reg.matrix, pairs) : undefined;
+    let labelsBlock: AlignSummary["labels"];
+    let diceRows:
+      | { label: number; name?: string; dice: number; fixedVoxels: number; movingVoxels: number }[]
+      | undefined;
+    if (fixedLabels && movingLabels && options.fixedLabels) {
+      const names = readLabelNames(options.fixedLabels);
+      const { dice } = propagateAndDice(fixedLabels, movingLabels, fixed, reg.matrix, names);
+      diceRows = dice.map((d) => ({
+        label: d.label,
+        name: d.name,
+        dice: d.dice,
+        fixedVoxels: d.fixedVoxels,
+        movingVoxels: d.movingVoxels,
+      }));
+      const byName: Record<string, number> = {};
+      for (const d of dice) byName[d.name ?? String(d.label)] = d.dice;
+      labelsBlock = {
+        dice: byName,
+        mean_dice: dice.length ? dice.reduce((s, d) => s + d.dice, 0) / dice.length : 0,
+        per_label: dice.map((d) => ({
+          label: d.label,
+          name: d.name ?? null,
+          dice: d.dice,
+          fixed_voxels: d.fixedVoxels,
+          moving_voxels: d.movingVoxels,
+        })),
+      };
+    }
+    const finest = reg.levels[reg.levels.length - 1];
+    const scaleBlock = describeParameters(reg.model, reg.parameters, reg.centerMm);
+    const quality = judgeRegistration(
+      {
+        model: reg.model,
+        matrix: reg.matrix,
+        scale: scaleBlock.scale,
+        overlapFraction: reg.overlapFraction,
+        metricStart: reg.metricStart,
+        metricFinal: reg.metricFinal,
+        converged: finest.converged,
+        convergenceReason: finest.reason,
+        inverseConsistencyMm: reg.inverseConsistencyMm,
+        treMeanMm: landmarkEval?.treMm.mean,
+        treMaxMm: landmarkEval?.treMm.max,
+        runnerUpGap: reg.search?.runnerUpGap,
+        runnerUpDistanceMm: reg.search?.runnerUpDistanceMm,
+        bestSearchCost: reg.search?.refinedCosts[0],
+      },
+      options.thresholds,
+    );
+    timing.measure = seconds(t0);
+
+    // ---- Resample the moving image onto the fixed grid ----
+    t0 = performance.now();
+    progress?.({ stage: "resample", fraction: 0 });
+    const movingDatatype = movingImage.header.scaled ? "float32" : movingImage.header.datatype;
+    const outDatatype = DATATYPES[movingDatatype].integer ? movingDatatype : "float32";
+    const { volume: movingOnFixed } = await resampleOnto(moving, fixed, reg.matrix, {
+      interp: "linear",
+      fill: 0,
+      datatype: outDatatype,
+      pool,
+      onProgress: progress,
+    });
+    timing.resample = seconds(t0);
+
+    // ---- Write ----
+    t0 = performance.now();
+    mkdirSync(outDir, { recursive: true });
+    progress?.({ stage: "write", fraction: 0 });
+    const fixedRef = imageRef(options.fixed, fixed, fixedSha);
+    const movingRef = imageRef(options.moving, moving, movingSha);
+    // Compressed on the thread pool while the main thread goes on (transform, summary, report).
+    const movingWritten = writeNiftiAsync(files.movingOnFixed, movingOnFixed, {
+      datatype: outDatatype,
+      gzipLevel: 1,
+      description: "coxa moving-on-fixed",
+    });
+    writeTransform(
+      files.transform,
+      buildTransformRecord({
+        model: reg.model,
+        matrix: reg.matrix,
+        centerMm: reg.centerMm,
+        parameters: reg.parameters,
+        fixed: fixedRef,
+        moving: movingRef,
+      }),
+    );
+    timing.write = seconds(t0);
+
+    const fm = reg.fixedMasks;
+    const mm = reg.movingMasks;
+    const ctImage =
+      fm.modality === "ct" && mm.modality === "ct"
+        ? "both"
+        : fm.modality === "ct"
+          ? "fixed"
+          : mm.modality === "ct"
+            ? "moving"
+            : "neither";
+    const summary: AlignSummary = {
+      format: "coxa.summary",
+      version: 1,
+      verdict: quality.verdict,
+      reasons: quality.reasons,
+      gates: quality.gates,
+      fixed: imageSummary(options.fixed, fixedSha, fixedImage, fm.modality, fm.modalityReason),
+      moving: imageSummary(options.moving, movingSha, movingImage, mm.modality, mm.modalityReason),
+      ct_image: ctImage,
+      model: reg.model,
+      metric: { name: reg.metric, start: reg.metricStart, final: reg.metricFinal, higher_is_better: true },
+      overlap_fraction: reg.overlapFraction,
+      inverse_consistency_mm: reg.inverseConsistencyMm,
+      init: { method: reg.init.method, note: reg.init.note },
+      search: reg.search,
+      levels: reg.levels.map((l) => ({
+        step_mm: l.stepMm,
+        model: l.model,
+        sampled: l.sampled,
+        samples: l.samples,
+        evaluations: l.evaluations,
+        converged: l.converged,
+        start: l.startSimilarity,
+        final: l.finalSimilarity,
+        overlap: l.overlap,
+        seconds: l.seconds,
+      })),
+      transform: { matrix: toRows(reg.matrix), parameters: scaleBlock },
+      masks: {
+        fixed: maskSummary(fm, options.fixedMask),
+        moving: maskSummary(mm, options.movingMask),
+      },
+      thresholds: { ...DEFAULT_THRESHOLDS, ...options.thresholds },
+      timing_s: timing,
+      outputs: {
+        transform: "transform.json",
+        moving_on_fixed: "moving-on-fixed.nii.gz",
+        summary: "summary.json",
+        report: options.noReport ? null : "report.html",
+      },
+      seed,
+      software: softwareInfo(),
+      note: CARE_NOTE,
+    };
+    if (landmarkEval) summary.landmarks = landmarkEvaluationToJson(landmarkEval);
+    if (labelsBlock) summary.labels = labelsBlock;
+
+    if (!options.noReport) {
+      t0 = performance.now();
+      progress?.({ stage: "report", fraction: 0 });
+      const inv = inverse(reg.matrix);
+      const metal = metalOnFixedGrid(reg, fixed, options.metalHu ?? REGISTER_DEFAULTS.metalHu);
+      writeAlignReport(files.report, {
+        verdict: quality.verdict,
+        reasons: quality.reasons,
+        fixed: {
+          volume: fixed,
+          path: options.fixed,
+          sha256: fixedSha,
+          modality: fm.modality,
+          modalityReason: fm.modalityReason,
+          datatype: fixedImage.header.datatype,
+        },
+        movingInfo: {
+          path: options.moving,
+          sha256: movingSha,
+          shape: [...moving.dims],
+          spacingMm: moving.spacingMm,
+          orientation: moving.orientation(),
+          datatype: movingImage.header.datatype,
+          modality: mm.modality,
+          modalityReason: mm.modalityReason,
+        },
+        movingOnFixed,
+        metalMask: metal?.mask,
+        metalVoxels: metal?.voxels,
+        pointsMm: metal ? { implant: metal.implantMm, otherHip: metal.otherHipMm } : undefined,
+        metalHu: options.metalHu ?? REGISTER_DEFAULTS.metalHu,
+        landmarks: pairs
+          ? pairs.labels.map((label, i) => {
+              const p = [0, 0, 0];
+              transformPoint(
+                p,
+                inv,
+                pairs.movingMm[3 * i],
+                pairs.movingMm[3 * i + 1],
+                pairs.movingMm[3 * i + 2],
+              );
+              return {
+                label,
+                fixedMm: [pairs.fixedMm[3 * i], pairs.fixedMm[3 * i + 1], pairs.fixedMm[3 * i + 2]] as [
+                  number,
+                  number,
+                  number,
+                ],
+                mappedMovingMm: [p[0], p[1], p[2]] as [number, number, number],
+                errorMm: landmarkEval!.errorsMm[i],
+                predictedTreMm: landmarkEval!.predictedTreMm ? landmarkEval!.predictedTreMm[i] : undefined,
+              };
+            })
+          : undefined,
+        freMm: landmarkEval?.freMm ?? undefined,
+        landmarkFlagMm: summary.thresholds.trePassMm,
+        dice: diceRows,
+        metric: {
+          name: metricLabel(reg.metric),
+          start: reg.metricStart,
+          final: reg.metricFinal,
+          lowerIsBetter: false,
+        },
+        metricTrace: reg.levels.map((l, i) => ({ level: i, stepMm: l.stepMm, values: l.trace })),
+        transform: {
+          model: reg.model,
+          matrix: toRows(reg.matrix),
+          inverse: toRows(inv),
+          parameters: { ...scaleBlock },
+        },
+        timings: timing,
+        overlapFraction: reg.overlapFraction,
+        inverseConsistencyMm: reg.inverseConsistencyMm ?? undefined,
+        software: softwareInfo(),
+      });
+      timing.report = seconds(t0);
+    }
+    t0 = performance.now();
+    await movingWritten;
+    timing.write += seconds(t0);
+    timing.total = seconds(tStart);
+    writeJsonAtomic(files.summary, summary);
+    progress?.({ stage: "done", fraction: 1 });
+    return { summary, exitCode: quality.verdict === "fail" ? 3 : 0, files, registration: reg };
   } finally {
     await pool.close();
   }
-}
-
-interface Validated {
-  fixedImage: NiftiImage;
-  movingImage: NiftiImage;
-  fixedSha: string;
-  movingSha: string;
-  fixedMask: Volume | undefined;
-  movingMask: Volume | undefined;
-  pairs: LandmarkPairs | undefined;
-  fixedLabels: Volume | undefined;
-  movingLabels: Volume | undefined;
-  files: AlignResult["files"];
-  outDir: string;
-  timing: Record<string, number>;
-  tStart: number;
-  pool: WorkerPool;
-}
-
-async function alignValidated(options: AlignOptions, v: Validated): Promise<AlignResult> {
-  const {
-    fixedImage,
-    movingImage,
-    fixedSha,
-    movingSha,
-    fixedMask,
-    movingMask,
-    pairs,
-    fixedLabels,
-    movingLabels,
-    files,
-    outDir,
-    timing,
-    tStart,
-    pool,
-  } = v;
-  const fixed = fixedImage.volume;
-  const moving = movingImage.volume;
-  const progress = options.onProgress;
-  const seed = options.seed ?? REGISTER_DEFAULTS.seed;
-  let t0: number;
-
-  // ---- Register ----
-  t0 = performance.now();
-  const reg = registerOrExplain(options, fixed, moving, {
-    model: options.model,
-    metric: options.metric,
-    levelsMm: options.levelsMm,
-    metalMask: options.metalMask,
-    metalHu: options.metalHu,
-    metalMarginMm: options.metalMarginMm,
-    fixedModality: options.fixedModality,
-    movingModality: options.movingModality,
-    fixedMask,
-    fixedMaskName: options.fixedMask,
-    movingMask,
-    movingMaskName: options.movingMask,
-    init: options.init,
-    landmarks: pairs,
-    seed,
-    threads: options.threads ?? defaultThreads(),
-    onProgress: progress,
-  });
-  timing.register = seconds(t0);
-  for (const [k, v] of Object.entries(reg.timings)) timing[`register_${k}`] = v;
-
-  // ---- Measure ----
-  t0 = performance.now();
-  const landmarkEval = pairs ? evaluateLandmarks(reg.matrix, pairs) : undefined;
-  let labelsBlock: AlignSummary["labels"];
-  let diceRows:
-    | { label: number; name?: string; dice: number; fixedVoxels: number; movingVoxels: number }[]
-    | undefined;
-  if (fixedLabels && movingLabels && options.fixedLabels) {
-    const names = readLabelNames(options.fixedLabels);
-    const { dice } = propagateAndDice(fixedLabels, movingLabels, fixed, reg.matrix, names);
-    diceRows = dice.map((d) => ({
-      label: d.label,
-      name: d.name,
-      dice: d.dice,
-      fixedVoxels: d.fixedVoxels,
-      movingVoxels: d.movingVoxels,
-    }));
-    const byName: Record<string, number> = {};
-    for (const d of dice) byName[d.name ?? String(d.label)] = d.dice;
-    labelsBlock = {
-      dice: byName,
-      mean_dice: dice.length ? dice.reduce((s, d) => s + d.dice, 0) / dice.length : 0,
-      per_label: dice.map((d) => ({
-        label: d.label,
-        name: d.name ?? null,
-        dice: d.dice,
-        fixed_voxels: d.fixedVoxels,
-        moving_voxels: d.movingVoxels,
-      })),
-    };
-  }
-  const finest = reg.levels[reg.levels.length - 1];
-  const scaleBlock = describeParameters(reg.model, reg.parameters, reg.centerMm);
-  const quality = judgeRegistration(
-    {
-      model: reg.model,
-      matrix: reg.matrix,
-      scale: scaleBlock.scale,
-      overlapFraction: reg.overlapFraction,
-      metricStart: reg.metricStart,
-      metricFinal: reg.metricFinal,
-      converged: finest.converged,
-      convergenceReason: finest.reason,
-      inverseConsistencyMm: reg.inverseConsistencyMm,
-      treMeanMm: landmarkEval?.treMm.mean,
-      treMaxMm: landmarkEval?.treMm.max,
-      runnerUpGap: reg.search?.runnerUpGap,
-      runnerUpDistanceMm: reg.search?.runnerUpDistanceMm,
-      bestSearchCost: reg.search?.refinedCosts[0],
-    },
-    options.thresholds,
-  );
-  timing.measure = seconds(t0);
-
-  // ---- Resample the moving image onto the fixed grid ----
-  t0 = performance.now();
-  progress?.({ stage: "resample", fraction: 0 });
-  const movingDatatype = movingImage.header.scaled ? "float32" : movingImage.header.datatype;
-  const outDatatype = DATATYPES[movingDatatype].integer ? movingDatatype : "float32";
-  const { volume: movingOnFixed } = await resampleOnto(moving, fixed, reg.matrix, {
-    interp: "linear",
-    fill: 0,
-    datatype: outDatatype,
-    pool,
-    onProgress: progress,
-  });
-  timing.resample = seconds(t0);
-
-  // ---- Write ----
-  t0 = performance.now();
-  mkdirSync(outDir, { recursive: true });
-  progress?.({ stage: "write", fraction: 0 });
-  const fixedRef = imageRef(options.fixed, fixed, fixedSha);
-  const movingRef = imageRef(options.moving, moving, movingSha);
-  // Compressed on the thread pool while the main thread goes on (transform, summary, report).
-  const movingWritten = writeNiftiAsync(files.movingOnFixed, movingOnFixed, {
-    datatype: outDatatype,
-    gzipLevel: 1,
-    description: "coxa moving-on-fixed",
-  });
-  writeTransform(
-    files.transform,
-    buildTransformRecord({
-      model: reg.model,
-      matrix: reg.matrix,
-      centerMm: reg.centerMm,
-      parameters: reg.parameters,
-      fixed: fixedRef,
-      moving: movingRef,
-    }),
-  );
-  timing.write = seconds(t0);
-
-  const fm = reg.fixedMasks;
-  const mm = reg.movingMasks;
-  const ctImage =
-    fm.modality === "ct" && mm.modality === "ct"
-      ? "both"
-      : fm.modality === "ct"
-        ? "fixed"
-        : mm.modality === "ct"
-          ? "moving"
-          : "neither";
-  const summary: AlignSummary = {
-    format: "coxa.summary",
-    version: 1,
-    verdict: quality.verdict,
-    reasons: quality.reasons,
-    gates: quality.gates,
-    fixed: imageSummary(options.fixed, fixedSha, fixedImage, fm.modality, fm.modalityReason),
-    moving: imageSummary(options.moving, movingSha, movingImage, mm.modality, mm.modalityReason),
-    ct_image: ctImage,
-    model: reg.model,
-    metric: { name: reg.metric, start: reg.metricStart, final: reg.metricFinal, higher_is_better: true },
-    overlap_fraction: reg.overlapFraction,
-    inverse_consistency_mm: reg.inverseConsistencyMm,
-    init: { method: reg.init.method, note: reg.init.note },
-    search: reg.search,
-    levels: reg.levels.map((l) => ({
-      step_mm: l.stepMm,
-      model: l.model,
-      sampled: l.sampled,
-      samples: l.samples,
-      evaluations: l.evaluations,
-      converged: l.converged,
-      start: l.startSimilarity,
-      final: l.finalSimilarity,
-      overlap: l.overlap,
-      seconds: l.seconds,
-    })),
-    transform: { matrix: toRows(reg.matrix), parameters: scaleBlock },
-    masks: {
-      fixed: maskSummary(fm, options.fixedMask),
-      moving: maskSummary(mm, options.movingMask),
-    },
-    thresholds: { ...DEFAULT_THRESHOLDS, ...options.thresholds },
-    timing_s: timing,
-    outputs: {
-      transform: "transform.json",
-      moving_on_fixed: "moving-on-fixed.nii.gz",
-      summary: "summary.json",
-      report: options.noReport ? null : "report.html",
-    },
-    seed,
-    software: softwareInfo(),
-    note: CARE_NOTE,
-  };
-  if (landmarkEval) summary.landmarks = landmarkEvaluationToJson(landmarkEval);
-  if (labelsBlock) summary.labels = labelsBlock;
-
-  if (!options.noReport) {
-    t0 = performance.now();
-    progress?.({ stage: "report", fraction: 0 });
-    const inv = inverse(reg.matrix);
-    const metal = metalOnFixedGrid(reg, fixed, options.metalHu ?? REGISTER_DEFAULTS.metalHu);
-    writeAlignReport(files.report, {
-      verdict: quality.verdict,
-      reasons: quality.reasons,
-      fixed: {
-        volume: fixed,
-        path: options.fixed,
-        sha256: fixedSha,
-        modality: fm.modality,
-        modalityReason: fm.modalityReason,
-        datatype: fixedImage.header.datatype,
-      },
-      movingInfo: {
-        path: options.moving,
-        sha256: movingSha,
-        shape: [...moving.dims],
-        spacingMm: moving.spacingMm,
-        orientation: moving.orientation(),
-        datatype: movingImage.header.datatype,
-        modality: mm.modality,
-        modalityReason: mm.modalityReason,
-      },
-      movingOnFixed,
-      metalMask: metal?.mask,
-      metalVoxels: metal?.voxels,
-      pointsMm: metal ? { implant: metal.implantMm, otherHip: metal.otherHipMm } : undefined,
-      metalHu: options.metalHu ?? REGISTER_DEFAULTS.metalHu,
-      landmarks: pairs
-        ? pairs.labels.map((label, i) => {
-            const p = [0, 0, 0];
-            transformPoint(
-              p,
-              inv,
-              pairs.movingMm[3 * i],
-              pairs.movingMm[3 * i + 1],
-              pairs.movingMm[3 * i + 2],
-            );
-            return {
-              label,
-              fixedMm: [pairs.fixedMm[3 * i], pairs.fixedMm[3 * i + 1], pairs.fixedMm[3 * i + 2]] as [
-                number,
-                number,
-                number,
-              ],
-              mappedMovingMm: [p[0], p[1], p[2]] as [number, number, number],
-              errorMm: landmarkEval!.errorsMm[i],
-              predictedTreMm: landmarkEval!.predictedTreMm ? landmarkEval!.predictedTreMm[i] : undefined,
-            };
-          })
-        : undefined,
-      freMm: landmarkEval?.freMm ?? undefined,
-      landmarkFlagMm: summary.thresholds.trePassMm,
-      dice: diceRows,
-      metric: {
-        name: metricLabel(reg.metric),
-        start: reg.metricStart,
-        final: reg.metricFinal,
-        lowerIsBetter: false,
-      },
-      metricTrace: reg.levels.map((l, i) => ({ level: i, stepMm: l.stepMm, values: l.trace })),
-      transform: {
-        model: reg.model,
-        matrix: toRows(reg.matrix),
-        inverse: toRows(inv),
-        parameters: { ...scaleBlock },
-      },
-      timings: timing,
-      overlapFraction: reg.overlapFraction,
-      inverseConsistencyMm: reg.inverseConsistencyMm ?? undefined,
-      software: softwareInfo(),
-    });
-    timing.report = seconds(t0);
-  }
-  t0 = performance.now();
-  await movingWritten;
-  timing.write += seconds(t0);
-  timing.total = seconds(tStart);
-  writeJsonAtomic(files.summary, summary);
-  progress?.({ stage: "done", fraction: 1 });
-  return { summary, exitCode: quality.verdict === "fail" ? 3 : 0, files, registration: reg };
 }
 
 /** registerImages, naming both files when the images cannot overlap. */

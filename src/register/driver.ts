@@ -447,32 +447,24 @@ function registerWith(
     progress?.({ stage: `search (${levelsMm[0]} mm)`, fraction: 0, level: 0 });
     const sampled = mMoments.volumeMm3 < 0.7 * fMoments.volumeMm3 ? "moving" : "fixed";
     /** A level-0 metric over the whole masks (no field-of-view restriction yet), sampling `sampled`. */
-    const levelZeroMetric = (samples: number, seed: number) =>
-      sampled === "fixed"
-        ? createMetric(o.metric, {
-            fixed: fLevel0,
-            moving: mLevel0,
-            fixedMask: fMasks.levels[0].include,
-            movingMask: mMasks.levels[0].include,
-            samples,
-            seed,
-            bins: o.bins,
-            splitter,
-            fixedRange: rangeOf(0, "fixed"),
-            movingRange: rangeOf(0, "moving"),
-          })
-        : createMetric(o.metric, {
-            fixed: mLevel0,
-            moving: fLevel0,
-            fixedMask: mMasks.levels[0].include,
-            movingMask: fMasks.levels[0].include,
-            samples,
-            seed,
-            bins: o.bins,
-            splitter,
-            fixedRange: rangeOf(0, "moving"),
-            movingRange: rangeOf(0, "fixed"),
-          });
+    const levelZeroMetric = (samples: number, seed: number) => {
+      const [sV, oV, sImg, oImg] =
+        sampled === "fixed"
+          ? ([fLevel0, mLevel0, fMasks, mMasks] as const)
+          : ([mLevel0, fLevel0, mMasks, fMasks] as const);
+      return createMetric(o.metric, {
+        fixed: sV,
+        moving: oV,
+        fixedMask: sImg.levels[0].include,
+        movingMask: oImg.levels[0].include,
+        samples,
+        seed,
+        bins: o.bins,
+        splitter,
+        fixedRange: rangeOf(0, sampled),
+        movingRange: rangeOf(0, sampled === "fixed" ? "moving" : "fixed"),
+      });
+    };
     const scanMetric = levelZeroMetric(o.scanSamples, o.seed);
     const scanInv = new Float64Array(16);
     const scan = scanTranslations({
