@@ -26,7 +26,7 @@ import { identity } from "../geometry/mat4.js";
 import { detectModality, type Modality } from "../image/modality.js";
 import type { Dims, Volume } from "../image/volume.js";
 import { blockDims } from "../pyramid/blocks.js";
-import type { Pyramid } from "../pyramid/pyramid.js";
+import type { Pyramid, PyramidLevel } from "../pyramid/pyramid.js";
 import { resampleOntoSync } from "../resample/resample.js";
 import { bodyMaskCt, bodyMaskMr, DEFAULT_BODY_HU } from "./body.js";
 import type { VoxelBox } from "./components.js";
@@ -142,7 +142,7 @@ export function prepareLevelMasks(
     const grown = step6(body, src.dims, true);
     const bands = new Uint8Array(body.length);
     for (let q = 0; q < bands.length; q++) bands[q] = grown[q] + interior[q];
-    bodies = levels.map((lv, l) => (l === bi ? body : refineBody(bands, src, lv.volume, threshold)));
+    bodies = levels.map((lv, l) => (l === bi ? body : refineBody(bands, levels[bi], lv, threshold)));
   }
   options.onProgress?.({ stage: "masks", fraction: 0.7 });
   // The MR void, like the body, is found once (on the level nearest bodyGridMm: it is a thick
@@ -152,7 +152,7 @@ export function prepareLevelMasks(
     const vi = nearestLevel(levels, VOID_GRID_MM);
     const src = levels[vi].volume;
     const mask = mrSignalVoid(src, { body: bodies[vi], threshold: mrThreshold }).mask;
-    voids = levels.map((lv, l) => (l === vi ? mask : transfer(mask, src, lv.volume)));
+    voids = levels.map((lv, l) => (l === vi ? mask : transfer(mask, levels[vi], lv)));
   }
   const out: LevelMasks[] = [];
   for (let l = 0; l < levels.length; l++) {
@@ -230,9 +230,9 @@ function combineInclude(
 }
 
 /** Body on another level from the coarse band labels (0 out, 1 band, 2 interior) and the level's values. */
-function refineBody(bands: Uint8Array, from: Volume, to: Volume, threshold: number): Uint8Array {
+function refineBody(bands: Uint8Array, from: PyramidLevel, to: PyramidLevel, threshold: number): Uint8Array {
   const lab = transfer(bands, from, to);
-  const data = to.data;
+  const data = to.volume.data;
   for (let q = 0; q < lab.length; q++) {
     const b = lab[q];
     lab[q] = b === 2 || (b === 1 && data[q] > threshold) ? 1 : 0;
@@ -254,10 +254,41 @@ function nearestLevel(levels: readonly { stepMm: number }[], targetMm: number): 
   return best;
 }
 
-function transfer(mask: Uint8Array, from: Volume, to: Volume): Uint8Array {
-  const src = from.withData(mask);
-  return resampleOntoSync(src, to, identity(), { interp: "nearest", datatype: "uint8", fill: 0 }).volume
-    .data as Uint8Array;
+/**
+ * Nearest-neighbour transfer of a 0/1 mask between two levels of one pyramid. Both grids are
+ * block reductions of the same full-resolution grid, so the nearest `from` voxel of a `to`
+ * voxel is found per axis, in full-resolution index units (a `to` centre F_t i + (F_t - 1)/2
+ * lies at from-index (c - (F_f - 1)/2) / F_f, rounded; beyond half a voxel outside: 0).
+ */
+function transfer(mask: Uint8Array, from: PyramidLevel, to: PyramidLevel): Uint8Array {
+  const fd = from.volume.dims;
+  const td = to.volume.dims;
+  const lut = [0, 1, 2].map((a) => {
+    const out = new Int32Array(td[a]);
+    const ft = to.factors[a];
+    const ff = from.factors[a];
+    for (let i = 0; i < td[a]; i++) {
+      const x = (ft * i + (ft - 1) / 2 - (ff - 1) / 2) / ff;
+      out[i] = x >= -0.5 && x <= fd[a] - 0.5 ? Math.min(fd[a] - 1, Math.floor(x + 0.5)) : -1;
+    }
+    return out;
+  });
+  const [lx, ly, lz] = lut;
+  const [nx, ny, nz] = td;
+  const out = new Uint8Array(nx * ny * nz);
+  for (let k = 0, q = 0; k < nz; k++) {
+    const K = lz[k];
+    for (let j = 0; j < ny; j++, q += nx) {
+      const J = ly[j];
+      if (K < 0 || J < 0) continue;
+      const row = fd[0] * (J + fd[1] * K);
+      for (let i = 0; i < nx; i++) {
+        const I = lx[i];
+        if (I >= 0) out[q + i] = mask[row + I];
+      }
+    }
+  }
+  return out;
 }
 
 /**

@@ -10,7 +10,7 @@
  *
  * Robust range: the pLow and pHigh percentiles (default 0.5 % and 99.5 %) of the finite values
  * inside the mask, with numpy's default "linear" interpolation between order statistics, on at
- * most `maxValues` voxels taken at a regular stride (exact below that size).
+ * most `maxValues` voxels taken at a regular stride through the mask (exact below that size).
  */
 import { CoxaError } from "../common/errors.js";
 import { Rng } from "../common/random.js";
@@ -58,7 +58,8 @@ export function createSampleSet(fixed: Volume, options: SampleOptions = {}): Sam
     throw new CoxaError("BAD_DIMS", `fixed mask has ${mask.length} voxels, the fixed image ${n}`);
   }
   let candidates = 0;
-  for (let q = 0; q < n; q++) if (mask?.[q] !== 0 && data[q] === data[q]) candidates++;
+  if (mask) for (let q = 0; q < n; q++) candidates += mask[q] !== 0 && data[q] === data[q] ? 1 : 0;
+  else for (let q = 0; q < n; q++) candidates += data[q] === data[q] ? 1 : 0;
   if (candidates === 0) throw new CoxaError("NO_OVERLAP", "the fixed mask leaves no voxel to sample");
   const wanted = Math.max(1, Math.floor(options.samples ?? DEFAULT_SAMPLES));
   const count = Math.min(wanted, candidates);
@@ -77,10 +78,19 @@ export function createSampleSet(fixed: Volume, options: SampleOptions = {}): Sam
   const voxel = new Int32Array(count);
   let rank = 0;
   let next = 0;
-  for (let q = 0; q < n && next < count; q++) {
-    if ((mask && mask[q] === 0) || data[q] !== data[q]) continue;
-    if (!ranks || ranks[next] === rank) voxel[next++] = q;
-    rank++;
+  if (!ranks) {
+    for (let q = 0; q < n && next < count; q++)
+      if ((!mask || mask[q] !== 0) && data[q] === data[q]) voxel[next++] = q;
+  } else {
+    let want = ranks[0];
+    for (let q = 0; q < n; q++) {
+      if ((mask && mask[q] === 0) || data[q] !== data[q]) continue;
+      if (rank++ === want) {
+        voxel[next++] = q;
+        if (next === count) break;
+        want = ranks[next];
+      }
+    }
   }
   const world = new Float64Array(3 * count);
   const values = new Float32Array(count);
@@ -120,8 +130,8 @@ export function percentile(values: ArrayLike<number>, percent: number): number {
  * @param data - voxel values
  * @param mask - allowed voxels (nonzero); default all
  * @param percents - [low, high] in percent; default [0.5, 99.5]
- * @param maxValues - about this many voxels are used (every step-th voxel of the volume, exact
- *   for volumes up to twice this size); default 200,000
+ * @param maxValues - about this many voxels are used (every step-th voxel inside the mask, exact
+ *   for masks of up to twice this size); default 200,000
  * @returns [lo, hi] with hi > lo (widened by 1 unit for a constant image)
  * @throws CoxaError NO_OVERLAP when there is no finite value
  */
@@ -131,9 +141,14 @@ export function robustRange(
   percents: readonly [number, number] = [0.5, 99.5],
   maxValues = 200_000,
 ): [number, number] {
-  // Visit every step-th voxel (exact, step 1, up to 2 x maxValues voxels); fall back to every
-  // voxel when a sparse mask leaves too few of them.
-  let picked = pickValues(data, mask, Math.max(1, Math.floor(data.length / (2 * maxValues))));
+  // Take every step-th voxel of the mask (exact, step 1, up to 2 x maxValues of them); fall
+  // back to every voxel when NaNs leave too few.
+  let inside = data.length;
+  if (mask) {
+    inside = 0;
+    for (let q = 0; q < mask.length; q++) inside += mask[q] !== 0 ? 1 : 0;
+  }
+  let picked = pickValues(data, mask, Math.max(1, Math.floor(inside / (2 * maxValues))));
   if (picked.length < 1000) picked = pickValues(data, mask, 1);
   if (picked.length === 0) throw new CoxaError("NO_OVERLAP", "no finite voxel inside the mask");
   const c = picked.length;
@@ -154,14 +169,27 @@ export function robustRange(
   return [lo, hi];
 }
 
-/** Finite values of `data` inside `mask` at every `step`-th voxel. */
+/**
+ * Finite values of `data` inside `mask`: of every `step` voxels inside the mask, the first (so
+ * the choice depends on the masked voxels and their order only, not on where the grid starts);
+ * without a mask, every `step`-th voxel.
+ */
 function pickValues(data: VoxelArray, mask: Uint8Array | undefined, step: number): Float64Array {
   const out = new Float64Array(Math.ceil(data.length / step));
   let c = 0;
   if (mask) {
-    for (let q = 0; q < data.length; q += step) {
+    let skip = 0;
+    for (let q = 0; q < data.length; q++) {
+      if (mask[q] === 0) continue;
+      if (skip > 0) {
+        skip--;
+        continue;
+      }
       const v = data[q];
-      if (mask[q] !== 0 && v === v) out[c++] = v;
+      if (v === v) {
+        out[c++] = v;
+        skip = step - 1;
+      }
     }
   } else {
     for (let q = 0; q < data.length; q += step) {

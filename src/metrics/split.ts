@@ -11,10 +11,14 @@
 import { Worker } from "node:worker_threads";
 import { CoxaError } from "../common/errors.js";
 import { workerScript } from "../common/workers.js";
+import { type SharedKernel, type WorkSharer, waitForHelper } from "../pyramid/parallel.js";
 import { CMD, CONTROL_SLOTS, DONE, HELPER_COUNTED, READY, SEQ, type SplitSetup } from "./split-protocol.js";
 
-/** A helper thread for split metric evaluation. */
-export class MetricSplitter {
+/**
+ * A helper thread for split metric evaluation; between metrics it also takes a share of the
+ * pyramid's big passes (src/pyramid/parallel.ts).
+ */
+export class MetricSplitter implements WorkSharer {
   private readonly worker: Worker;
   private readonly controlBuffer = new SharedArrayBuffer(4 * CONTROL_SLOTS);
   private readonly ctrl = new Int32Array(this.controlBuffer);
@@ -63,6 +67,13 @@ export class MetricSplitter {
     this.waitFor(READY, 0, 1);
     this.bound = owner;
     return new Float64Array(joint);
+  }
+
+  /** Let the helper run its share of `task`; the returned function waits until it is done. */
+  share(task: SharedKernel): () => void {
+    this.release();
+    this.worker.postMessage(task);
+    return () => waitForHelper(task.control, () => this.failed);
   }
 
   /** Whether the helper currently serves `owner`. */

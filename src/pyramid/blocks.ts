@@ -104,9 +104,62 @@ export function blockMeanTracking(
   threshold: number,
   planeHook?: (plane: Float64Array) => void,
 ): HighValues {
+  const part = blockMeanPart(out, data, dims, factors, threshold, planeHook);
+  return finishTracking([part], data, dims, factors, threshold);
+}
+
+/** What one thread's share of a tracking reduction found: count, then min and max i, j, k. */
+export type TrackedPart = Int32Array;
+
+/**
+ * One thread's share of blockMean(Tracking): the output slices handed out by `claim` (a shared
+ * counter, slot 0), or all of them without it.
+ * @param threshold - track voxels >= this (+Infinity: none)
+ * @returns the part's tracked voxels (see TrackedPart)
+ */
+export function blockMeanPart(
+  out: Float32Array,
+  data: VoxelArray,
+  dims: Dims,
+  factors: BlockFactors,
+  threshold: number,
+  planeHook?: (plane: Float64Array) => void,
+  claim?: Int32Array,
+): TrackedPart {
   const tracker = { threshold, count: 0, min: [dims[0], dims[1], dims[2]], max: [-1, -1, -1] };
-  reduceBlocks(out, data, dims, factors, "mean", 0, tracker, planeHook);
-  // Voxels of the incomplete far-edge blocks, not visited by the reduction.
+  reduceBlocks(
+    out,
+    data,
+    dims,
+    factors,
+    "mean",
+    0,
+    Number.isFinite(threshold) ? tracker : undefined,
+    planeHook,
+    claim,
+  );
+  return Int32Array.of(tracker.count, ...tracker.min, ...tracker.max);
+}
+
+/**
+ * Merge the parts of a tracking reduction and add the voxels of the incomplete far-edge
+ * blocks, which the reduction does not visit.
+ */
+export function finishTracking(
+  parts: readonly TrackedPart[],
+  data: VoxelArray,
+  dims: Dims,
+  factors: BlockFactors,
+  threshold: number,
+): HighValues {
+  const tracker = { threshold, count: 0, min: [dims[0], dims[1], dims[2]], max: [-1, -1, -1] };
+  for (const p of parts) {
+    tracker.count += p[0];
+    for (let a = 0; a < 3; a++) {
+      tracker.min[a] = Math.min(tracker.min[a], p[1 + a]);
+      tracker.max[a] = Math.max(tracker.max[a], p[4 + a]);
+    }
+  }
   const [nx, ny, nz] = dims;
   const used = blockDims(dims, factors).map((o, a) => o * factors[a]);
   for (let k = 0; k < nz; k++)
@@ -190,6 +243,7 @@ function reduceBlocks(
   threshold: number,
   tracker?: Tracker,
   planeHook?: (plane: Float64Array) => void,
+  claim?: Int32Array,
 ): void {
   const [ox, oy, oz] = blockDims(dims, factors);
   const [fx, fy, fz] = factors;
@@ -203,7 +257,13 @@ function reduceBlocks(
   const scale = 1 / count;
   const usedX = ox * fx;
   const thr = tracker ? tracker.threshold : Number.POSITIVE_INFINITY;
-  for (let kk = 0; kk < oz; kk++) {
+  // Output slices in order, or (with `claim`) whichever the shared counter hands out next, so
+  // that two threads can share one reduction (src/pyramid/parallel.ts).
+  for (
+    let kk = claim ? Atomics.add(claim, 0, 1) : 0;
+    kk < oz;
+    kk = claim ? Atomics.add(claim, 0, 1) : kk + 1
+  ) {
     acc.fill(0);
     for (let dk = 0; dk < fz; dk++) {
       const k = kk * fz + dk;

@@ -198,19 +198,39 @@ export function gaussianSmooth(
     src = out;
   }
   if (sigmaVoxels[2] >= 1e-3 && nz > 1) {
-    const w = kernelOf(sigmaVoxels[2], truncate, kind);
-    const column = new Float32Array(nx * nz);
-    const acc = new Float64Array(nx);
-    const rowsOut = new Float32Array(nx * nz);
-    for (let j = 0; j < ny; j++) {
-      for (let k = 0; k < nz; k++) column.set(src.subarray(nx * j + nxy * k, nx * (j + 1) + nxy * k), k * nx);
-      smoothRows(rowsOut, 0, column, nz, nx, w, acc);
-      for (let k = 0; k < nz; k++) out.set(rowsOut.subarray(k * nx, (k + 1) * nx), nx * j + nxy * k);
-    }
+    smoothAlongK(out, src, dims, sigmaVoxels[2], truncate, kind);
     src = out;
   }
   if (src !== (out as VoxelArray)) for (let q = 0; q < n; q++) out[q] = data[q];
   return out;
+}
+
+/**
+ * The k pass of gaussianSmooth on its own: out = data smoothed along k by `sigma` voxels, one
+ * (i, k) sheet per j. With `claim` (a shared counter, slot 0) only the sheets it hands out are
+ * done, so that two threads can share the pass (src/pyramid/parallel.ts). Each sheet is read
+ * whole before it is written and sheets do not overlap, so `out` may be `data`.
+ */
+export function smoothAlongK(
+  out: Float32Array,
+  data: VoxelArray,
+  dims: Dims,
+  sigma: number,
+  truncate: number,
+  kind: GaussianKind,
+  claim?: Int32Array,
+): void {
+  const [nx, ny, nz] = dims;
+  const nxy = nx * ny;
+  const w = kernelOf(sigma, truncate, kind);
+  const column = new Float32Array(nx * nz);
+  const acc = new Float64Array(nx);
+  const rowsOut = new Float32Array(nx * nz);
+  for (let j = claim ? Atomics.add(claim, 0, 1) : 0; j < ny; j = claim ? Atomics.add(claim, 0, 1) : j + 1) {
+    for (let k = 0; k < nz; k++) column.set(data.subarray(nx * j + nxy * k, nx * (j + 1) + nxy * k), k * nx);
+    smoothRows(rowsOut, 0, column, nz, nx, w, acc);
+    for (let k = 0; k < nz; k++) out.set(rowsOut.subarray(k * nx, (k + 1) * nx), nx * j + nxy * k);
+  }
 }
 
 /**

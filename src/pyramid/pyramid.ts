@@ -36,6 +36,7 @@
  */
 import { CoxaError } from "../common/errors.js";
 import type { ProgressFn } from "../common/progress.js";
+import { isShared, sharedArray } from "../common/shared-arrays.js";
 import { Volume } from "../image/volume.js";
 import {
   type BlockFactors,
@@ -43,9 +44,11 @@ import {
   blockDims,
   blockMean,
   blockMeanTracking,
+  finishTracking,
   type HighValues,
 } from "./blocks.js";
 import { gaussianSmooth, planeSmoother } from "./gaussian.js";
+import { newControl, type PlaneSmoothing, runShare, sharedInts, type WorkSharer } from "./parallel.js";
 
 /** Default pyramid steps in mm, coarse to fine (design.md `--levels 8,4,2`). */
 export const DEFAULT_LEVELS_MM: readonly number[] = [8, 4, 2];
@@ -98,6 +101,11 @@ export interface PyramidOptions {
    * same pass that reads the volume; metalMask then skips its own full-resolution search.
    */
   trackAbove?: number;
+  /**
+   * A helper thread to share the base reduction and the finest level's k pass with (used when
+   * the volume's data lives on a SharedArrayBuffer; the levels then do too).
+   */
+  sharer?: WorkSharer;
 }
 
 /**
@@ -121,6 +129,29 @@ export function levelAxisPlan(
   return { factor, gaussianSigmaMm, totalSigmaMm };
 }
 /**
+ * Block factors of every level (see the module header): the base factors and, per level and
+ * axis, the level's plan.
+ * @param dims - input grid size
+ * @param spacing - input voxel spacing (mm)
+ * @param levelsMm - level steps (mm)
+ */
+export function pyramidPlan(
+  dims: readonly [number, number, number],
+  spacing: readonly number[],
+  levelsMm: readonly number[],
+): { baseFactors: [number, number, number]; plans: ReturnType<typeof levelAxisPlan>[][] } {
+  const hMin = Math.min(...levelsMm);
+  const baseFactors: [number, number, number] = [0, 0, 0];
+  for (let a = 0; a < 3; a++) {
+    baseFactors[a] = Math.min(dims[a], Math.max(1, Math.floor(hMin / spacing[a] + 1e-6)));
+  }
+  const plans = levelsMm.map((h) =>
+    [0, 1, 2].map((a) => levelAxisPlan(spacing[a], h, baseFactors[a], dims[a])),
+  );
+  return { baseFactors, plans };
+}
+
+/**
  * Build the multiresolution pyramid of `volume`.
  * @param volume - full-resolution image (any datatype; CT in HU, MR in its own unit)
  * @param options - levelsMm (steps in mm), onProgress
@@ -137,15 +168,9 @@ export function buildPyramid(volume: Volume, options: PyramidOptions = {}): Pyra
   }
   const spacing = volume.spacingMm;
   const hMin = Math.min(...levelsMm);
-  const baseFactors: [number, number, number] = [0, 0, 0];
-  for (let a = 0; a < 3; a++) {
-    baseFactors[a] = Math.min(volume.dims[a], Math.max(1, Math.floor(hMin / spacing[a] + 1e-6)));
-  }
+  const { baseFactors, plans } = pyramidPlan(volume.dims, spacing, levelsMm);
   const baseDims = blockDims(volume.dims, baseFactors);
   const baseCount = baseDims[0] * baseDims[1] * baseDims[2];
-  const plans = levelsMm.map((h) =>
-    [0, 1, 2].map((a) => levelAxisPlan(spacing[a], h, baseFactors[a], volume.dims[a])),
-  );
   // The finest level's grid is the base grid (its factors are the base factors); its in-plane
   // Gaussian is applied to each base slice as the reduction finishes it (no extra pass), and
   // every level then needs that much less of its own Gaussian (variances add).
@@ -156,24 +181,65 @@ export function buildPyramid(volume: Volume, options: PyramidOptions = {}): Pyra
     !(volume.data instanceof Float32Array) ||
     track !== undefined;
   const preSigmaMm = [0, 0, 0];
-  let hook: ((plane: Float64Array) => void) | undefined;
+  let smoothing: PlaneSmoothing | undefined;
   if (reduce) {
     preSigmaMm[0] = finest[0].gaussianSigmaMm;
     preSigmaMm[1] = finest[1].gaussianSigmaMm;
     const sx = preSigmaMm[0] / (spacing[0] * baseFactors[0]);
     const sy = preSigmaMm[1] / (spacing[1] * baseFactors[1]);
     if (sx >= 1e-3 || sy >= 1e-3)
-      hook = planeSmoother(baseDims[0], baseDims[1], sx, sy, PYRAMID_TRUNCATE, "discrete");
+      smoothing = {
+        nx: baseDims[0],
+        ny: baseDims[1],
+        sigmaX: sx,
+        sigmaY: sy,
+        truncate: PYRAMID_TRUNCATE,
+        gauss: "discrete",
+      };
   }
+  const sharer = options.sharer && isShared(volume.data) ? options.sharer : undefined;
+  const floats = (n: number) => (sharer ? (sharedArray("float32", n) as Float32Array) : new Float32Array(n));
   let highValues: HighValues | undefined;
   let baseData: Float32Array;
   if (!reduce) {
     baseData = volume.data as Float32Array;
-  } else if (track !== undefined) {
-    baseData = new Float32Array(baseCount);
-    highValues = blockMeanTracking(baseData, volume.data, volume.dims, baseFactors, track, hook);
+  } else if (sharer) {
+    // Both threads reduce output slices from one counter (src/pyramid/parallel.ts).
+    baseData = floats(baseCount);
+    const threshold = track ?? Number.POSITIVE_INFINITY;
+    const helperPart = sharedInts(7);
+    helperPart.set([0, volume.dims[0], volume.dims[1], volume.dims[2], -1, -1, -1]);
+    const task = {
+      kind: "block-mean" as const,
+      control: newControl(),
+      out: baseData,
+      data: volume.data,
+      dims: volume.dims,
+      factors: baseFactors,
+      threshold,
+      smoothing,
+      helperPart,
+    };
+    const wait = sharer.share(task);
+    const own = runShare(task)!;
+    wait();
+    if (track !== undefined)
+      highValues = finishTracking([own, helperPart], volume.data, volume.dims, baseFactors, track);
   } else {
-    baseData = blockMean(new Float32Array(baseCount), volume.data, volume.dims, baseFactors, hook);
+    const hook = smoothing
+      ? planeSmoother(
+          smoothing.nx,
+          smoothing.ny,
+          smoothing.sigmaX,
+          smoothing.sigmaY,
+          PYRAMID_TRUNCATE,
+          "discrete",
+        )
+      : undefined;
+    baseData = new Float32Array(baseCount);
+    if (track !== undefined)
+      highValues = blockMeanTracking(baseData, volume.data, volume.dims, baseFactors, track, hook);
+    else blockMean(baseData, volume.data, volume.dims, baseFactors, hook);
   }
   options.onProgress?.({ stage: "pyramid", fraction: 0.5 });
   const levels: PyramidLevel[] = [];
@@ -198,11 +264,35 @@ export function buildPyramid(volume: Volume, options: PyramidOptions = {}): Pyra
     const dims = blockDims(baseDims, rel);
     const n = dims[0] * dims[1] * dims[2];
     let reduced: Float32Array;
-    if (rel[0] * rel[1] * rel[2] === 1) {
+    if (
+      rel[0] * rel[1] * rel[2] === 1 &&
+      sharer &&
+      sigmaVox[0] < 1e-3 &&
+      sigmaVox[1] < 1e-3 &&
+      sigmaVox[2] >= 1e-3 &&
+      dims[2] > 1
+    ) {
+      // The finest level: only its k pass is left (the in-plane one ran with the reduction);
+      // shared by sheets of constant j.
+      reduced = floats(n);
+      const task = {
+        kind: "smooth-k" as const,
+        control: newControl(),
+        out: reduced,
+        data: baseData,
+        dims,
+        sigma: sigmaVox[2],
+        truncate: PYRAMID_TRUNCATE,
+        gauss: "discrete" as const,
+      };
+      const wait = sharer.share(task);
+      runShare(task);
+      wait();
+    } else if (rel[0] * rel[1] * rel[2] === 1) {
       // Smoothed straight from the base grid into a new array (the base stays intact).
-      reduced = gaussianSmooth(new Float32Array(n), baseData, dims, sigmaVox, PYRAMID_TRUNCATE, "discrete");
+      reduced = gaussianSmooth(floats(n), baseData, dims, sigmaVox, PYRAMID_TRUNCATE, "discrete");
     } else {
-      reduced = blockMean(new Float32Array(n), baseData, baseDims, rel);
+      reduced = blockMean(floats(n), baseData, baseDims, rel);
       gaussianSmooth(reduced, reduced, dims, sigmaVox, PYRAMID_TRUNCATE, "discrete");
     }
     const affine = blockAffine(volume.indexToWorld, factors);

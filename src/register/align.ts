@@ -31,7 +31,14 @@ import { readUserMask } from "../masks/user-mask.js";
 import type { MetricKind } from "../metrics/metric.js";
 import { writeAlignReport } from "../report/align-report.js";
 import { createResamplePool, resampleOnto } from "../resample/resample.js";
-import { REGISTER_DEFAULTS, type RegistrationResult, registerImages } from "./driver.js";
+import {
+  type PreparedImage,
+  prepareImage,
+  REGISTER_DEFAULTS,
+  type RegisterOptions,
+  type RegistrationResult,
+  registerImages,
+} from "./driver.js";
 import type { InitMethod } from "./initialise.js";
 import { propagateAndDice, readLabelNames } from "./labels.js";
 import { DEFAULT_THRESHOLDS, judgeRegistration, type QualityThresholds, type Verdict } from "./quality.js";
@@ -162,12 +169,36 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
   // ---- Read and validate everything first ----
   let t0 = performance.now();
   progress?.({ stage: "read", fraction: 0 });
-  const [fixedImage, movingImage] = await Promise.all([
-    readVolume3d(options.fixed),
-    readVolume3d(options.moving),
-  ]);
+  const fixedRead = readVolume3d(options.fixed);
+  const movingRead = readVolume3d(options.moving);
+  const shaRead = Promise.all([sha256File(options.fixed), sha256File(options.moving)]);
+  // Rejections are awaited below; these handlers only keep a failure that arrives while the
+  // main thread is busy from counting as unhandled.
+  for (const p of [fixedRead, movingRead, shaRead]) p.catch(() => undefined);
   const fixedMask = options.fixedMask ? readUserMask(options.fixedMask) : undefined;
   const movingMask = options.movingMask ? readUserMask(options.movingMask) : undefined;
+  const seed = options.seed ?? REGISTER_DEFAULTS.seed;
+  const regOptions: RegisterOptions = {
+    model: options.model,
+    metric: options.metric,
+    levelsMm: options.levelsMm,
+    metalMask: options.metalMask,
+    metalHu: options.metalHu,
+    metalMarginMm: options.metalMarginMm,
+    fixedModality: options.fixedModality,
+    movingModality: options.movingModality,
+    fixedMask,
+    fixedMaskName: options.fixedMask,
+    movingMask,
+    movingMaskName: options.movingMask,
+    init: options.init,
+    seed,
+    threads: options.threads ?? defaultThreads(),
+    onProgress: progress,
+  };
+  // The image read first is prepared (pyramid, masks) while the other is still inflating.
+  const prepared = await prepareWhileReading(fixedRead, movingRead, regOptions);
+  const [fixedImage, movingImage] = await Promise.all([fixedRead, movingRead]);
   let pairs: LandmarkPairs | undefined;
   if (options.fixedLandmarks || options.movingLandmarks) {
     if (!options.fixedLandmarks || !options.movingLandmarks) {
@@ -215,36 +246,16 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
   if (existsSync(outDir) && !statSync(outDir).isDirectory()) {
     throw new CoxaError("BAD_ARGUMENT", "output path exists and is not a folder", options.out);
   }
-  const [fixedSha, movingSha] = await Promise.all([sha256File(options.fixed), sha256File(options.moving)]);
+  const [fixedSha, movingSha] = await shaRead;
   timing.read = seconds(t0);
   // Start the resampling threads now; they are ready when registration ends.
   const pool = createResamplePool(options.threads);
   try {
     const fixed = fixedImage.volume;
     const moving = movingImage.volume;
-    const seed = options.seed ?? REGISTER_DEFAULTS.seed;
-
     // ---- Register ----
     t0 = performance.now();
-    const reg = registerOrExplain(options, fixed, moving, {
-      model: options.model,
-      metric: options.metric,
-      levelsMm: options.levelsMm,
-      metalMask: options.metalMask,
-      metalHu: options.metalHu,
-      metalMarginMm: options.metalMarginMm,
-      fixedModality: options.fixedModality,
-      movingModality: options.movingModality,
-      fixedMask,
-      fixedMaskName: options.fixedMask,
-      movingMask,
-      movingMaskName: options.movingMask,
-      init: options.init,
-      landmarks: pairs,
-      seed,
-      threads: options.threads ?? defaultThreads(),
-      onProgress: progress,
-    });
+    const reg = registerOrExplain(options, fixed, moving, { ...regOptions, landmarks: pairs, prepared });
     timing.register = seconds(t0);
     for (const [k, v] of Object.entries(reg.timings)) timing[`register_${k}`] = v;
 
@@ -485,6 +496,33 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
   } finally {
     await pool.close();
   }
+}
+
+/**
+ * Wait for the first of the two reads; if the other is still running, prepare the first image
+ * for registration meanwhile (its pyramid and masks; prepareImage). Read errors are left to the
+ * caller's own await.
+ */
+async function prepareWhileReading(
+  fixedRead: Promise<NiftiImage>,
+  movingRead: Promise<NiftiImage>,
+  options: RegisterOptions,
+): Promise<{ fixed?: PreparedImage; moving?: PreparedImage }> {
+  const done = { fixed: false, moving: false };
+  const tagged = (which: "fixed" | "moving", p: Promise<NiftiImage>) =>
+    p.then((image) => {
+      done[which] = true;
+      return { which, image };
+    });
+  let first: { which: "fixed" | "moving"; image: NiftiImage };
+  try {
+    first = await Promise.race([tagged("fixed", fixedRead), tagged("moving", movingRead)]);
+  } catch {
+    return {};
+  }
+  const other = first.which === "fixed" ? "moving" : "fixed";
+  if (done[other]) return {};
+  return { [first.which]: prepareImage(first.image.volume, first.which, options) };
 }
 
 /** registerImages, naming both files when the images cannot overlap. */

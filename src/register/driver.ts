@@ -21,6 +21,7 @@
  */
 import { CoxaError } from "../common/errors.js";
 import type { ProgressFn } from "../common/progress.js";
+import { toShared } from "../common/shared-arrays.js";
 import type { LandmarkPairs } from "../geometry/landmarks.js";
 import { identity, inverse, invertAffine, type Mat4 } from "../geometry/mat4.js";
 import {
@@ -30,14 +31,16 @@ import {
   parametersToMatrix,
   type TransformModel,
 } from "../geometry/transform-model.js";
+import { contentBox, cropVolume } from "../image/crop.js";
 import { detectModality, type Modality } from "../image/modality.js";
 import type { Volume } from "../image/volume.js";
+import { DEFAULT_BODY_HU } from "../masks/body.js";
 import { type ImageMasks, prepareLevelMasks } from "../masks/level-masks.js";
 import { createMetric, type Metric, type MetricKind } from "../metrics/metric.js";
 import { robustRange } from "../metrics/sampler.js";
 import { MetricSplitter } from "../metrics/split.js";
 import { powell } from "../optimize/powell.js";
-import { buildPyramid, type Pyramid } from "../pyramid/pyramid.js";
+import { buildPyramid, type Pyramid, pyramidPlan } from "../pyramid/pyramid.js";
 import { type InitialTransform, type InitMethod, initialTransform } from "./initialise.js";
 import {
   boxCorners,
@@ -88,10 +91,28 @@ export interface RegisterOptions {
   threads?: number;
   /** Exclude the estimated MR signal void when the other image shows metal (default true). */
   mrVoid?: boolean;
+  /** Crop a CT to its content (voxels above the body threshold, plus a margin) first (default true). */
+  cropToContent?: boolean;
   /** Repeat the finest level sampling the other image and compare (default true). */
   inverseConsistency?: boolean;
   seed?: number;
   onProgress?: ProgressFn;
+  /** Images already prepared with prepareImage (same options), e.g. while the other was read. */
+  prepared?: { fixed?: PreparedImage; moving?: PreparedImage };
+}
+
+/** One image made ready for registration (prepareImage). */
+export interface PreparedImage {
+  /** The volume given. */
+  source: Volume;
+  modality: Modality | ReturnType<typeof detectModality>;
+  /** What the registration works on (a CT cropped to its content, see workingVolume). */
+  work: Volume;
+  pyramid: Pyramid;
+  masks: ImageMasks;
+  /** Whether the masks exclude an MR signal void (built for another image that shows metal). */
+  voidExcluded: boolean;
+  seconds: { pyramid: number; masks: number };
 }
 
 export const REGISTER_DEFAULTS = {
@@ -105,6 +126,7 @@ export const REGISTER_DEFAULTS = {
   globalSearch: true,
   bins: 32,
   inverseConsistency: true,
+  cropToContent: true,
   mrVoid: true,
   sampleFrom: "auto" as "auto" | "fixed" | "moving" | "coarser",
   seed: 1,
@@ -125,6 +147,10 @@ export const REGISTER_DEFAULTS = {
   scanKeep: 5,
   scanSeparationMm: 30,
   scanSamples: 1500,
+  /** Screening of the scan: samples, share of grid points kept for the full score, least kept. */
+  scanScreenSamples: 400,
+  scanScreenKeep: 0.1,
+  scanScreenMin: 60,
   /** Most samples a finest level may use after lever scaling (see buildMetric). */
   maxSamples: 80000,
   /** Samples of the inverse-consistency run (it starts at the forward answer). */
@@ -155,7 +181,10 @@ export interface LevelRecord {
 
 /** What the coarse search did. */
 export interface SearchRecord {
+  /** Grid points visited by the scan. */
   evaluated: number;
+  /** Of those, scored by the full scan metric (the rest dropped out at screening). */
+  scored: number;
   refined: number;
   /** Costs (lower better) of the refined candidates, best first. */
   refinedCosts: number[];
@@ -195,10 +224,66 @@ export interface RegistrationResult {
   movingMasks: ImageMasks;
   fixedPyramid: Pyramid;
   movingPyramid: Pyramid;
-  timings: { pyramid: number; masks: number; search: number; optimise: number; inverse: number };
+  /**
+   * Seconds per stage; `prepared` is the pyramid and mask time of images prepared before the
+   * call (prepareImage), not part of the others.
+   */
+  timings: {
+    pyramid: number;
+    masks: number;
+    prepared: number;
+    search: number;
+    optimise: number;
+    inverse: number;
+  };
 }
 
 const seconds = (t0: number) => (performance.now() - t0) / 1000;
+
+/** Volumes from this size on have their pyramid passes shared with the helper thread. */
+const SHARE_PYRAMID_VOXELS = 2_000_000;
+/** A CT from this size on is cropped to its content plus this margin (mm) before the pyramid. */
+const CROP_MIN_VOXELS = 2_000_000;
+const CROP_MARGIN_MM = 20;
+
+/**
+ * The volume the registration works on: a large CT cropped to the box of its voxels above the
+ * body threshold plus CROP_MARGIN_MM (when that saves at least 10 %), else the volume itself;
+ * on shared memory when a helper thread will share its passes.
+ */
+function workingVolume(
+  v: Volume,
+  modality: Modality,
+  share: boolean,
+  crop: boolean,
+  levelsMm: readonly number[],
+): Volume {
+  if (crop && modality === "ct" && v.count >= CROP_MIN_VOXELS) {
+    const box = contentBox(v, DEFAULT_BODY_HU, CROP_MARGIN_MM);
+    if (box) {
+      // The box starts on a multiple of every level's block factor and spans a multiple of
+      // them (or reaches the far edge), so each level of the crop is a part of the same level
+      // of the whole image: the same voxel centres and, inside the masks, the same values.
+      const { plans } = pyramidPlan(v.dims, v.spacingMm, levelsMm);
+      for (let a = 0; a < 3; a++) {
+        const step = plans.reduce((l, p) => lcm(l, p[a].factor), 1);
+        box.min[a] -= box.min[a] % step;
+        const span = Math.ceil((box.max[a] - box.min[a]) / step) * step;
+        box.max[a] = Math.min(v.dims[a], box.min[a] + span);
+      }
+      const kept = (box.max[0] - box.min[0]) * (box.max[1] - box.min[1]) * (box.max[2] - box.min[2]);
+      if (kept < 0.9 * v.count) return cropVolume(v, box, share);
+    }
+  }
+  return share && v.count >= SHARE_PYRAMID_VOXELS ? v.withData(toShared(v.data, v.datatype)) : v;
+}
+
+function lcm(a: number, b: number): number {
+  let x = a;
+  let y = b;
+  while (y) [x, y] = [y, x % y];
+  return (a / x) * b;
+}
 
 /**
  * Register `moving` to `fixed`.
@@ -217,7 +302,7 @@ export function registerImages(
   const o = resolveRegisterOptions(options);
   const levelsMm = [...o.levelsMm];
   if (levelsMm.length === 0) throw new CoxaError("BAD_ARGUMENT", "at least one pyramid level is needed");
-  const timings = { pyramid: 0, masks: 0, search: 0, optimise: 0, inverse: 0 };
+  const timings = { pyramid: 0, masks: 0, prepared: 0, search: 0, optimise: 0, inverse: 0 };
   const splitter = (options.threads ?? 1) > 1 ? new MetricSplitter() : undefined;
   try {
     return registerWith(fixed, moving, options, o, levelsMm, timings, splitter);
@@ -230,54 +315,52 @@ function registerWith(
   fixed: Volume,
   moving: Volume,
   options: RegisterOptions,
-  o: ReturnType<typeof resolveRegisterOptions>,
+  o: ResolvedOptions,
   levelsMm: number[],
   timings: RegistrationResult["timings"],
   splitter: MetricSplitter | undefined,
 ): RegistrationResult {
   const progress = options.onProgress;
 
+  // Each image: modality, working volume, pyramid, masks — the CT-like image first: when it
+  // shows metal, the MR's signal void is excluded too (either image may be the CT). An image
+  // prepared before the call (prepareImage, e.g. while the other was still being read) is
+  // used as it is, its masks rebuilt only when its void assumption turns out wrong.
   let t0 = performance.now();
   progress?.({ stage: "pyramid", fraction: 0 });
-  // Track voxels above the metal threshold during the pyramid's full-resolution pass, so the
-  // metal mask needs no second pass over a large CT.
-  const fPyr = buildPyramid(fixed, { levelsMm, trackAbove: o.metalMask ? o.metalHu : undefined });
-  const mPyr = buildPyramid(moving, { levelsMm, trackAbove: o.metalMask ? o.metalHu : undefined });
-  timings.pyramid = seconds(t0);
-
-  t0 = performance.now();
-  progress?.({ stage: "masks", fraction: 0 });
-  // The CT-like image's masks first: when it shows metal, the MR's signal void is excluded too
-  // (either image may be the CT).
-  const fixedModality = o.fixedModality ?? detectModality(fixed.data);
-  const movingModality = o.movingModality ?? detectModality(moving.data);
-  const masksOf = (which: "fixed" | "moving", otherHasMetal: boolean) => {
-    const isFixed = which === "fixed";
-    const given = isFixed ? o.fixedModality : o.movingModality;
-    const detected = isFixed ? fixedModality : movingModality;
-    return prepareLevelMasks(isFixed ? fixed : moving, isFixed ? fPyr : mPyr, {
-      modality: typeof detected === "string" ? detected : detected.modality,
-      modalityReason: given ? undefined : typeof detected === "string" ? undefined : detected.reason,
-      metalMask: o.metalMask,
-      metalHu: o.metalHu,
-      metalMarginMm: o.metalMarginMm,
-      userMask: isFixed ? o.fixedMask : o.movingMask,
-      userMaskName: isFixed ? o.fixedMaskName : o.movingMaskName,
-      mrVoid: o.mrVoid && otherHasMetal,
-    });
-  };
-  const hasMetal = (m: ImageMasks) => (m.metal?.metalVoxels ?? 0) > 0;
+  const given = options.prepared ?? {};
+  const modalityOf = (which: "fixed" | "moving") =>
+    given[which]?.modality ??
+    (which === "fixed" ? o.fixedModality : o.movingModality) ??
+    detectModality((which === "fixed" ? fixed : moving).data);
+  const fixedModality = modalityOf("fixed");
+  const movingModality = modalityOf("moving");
   const movingFirst = modalityName(movingModality) === "ct" && modalityName(fixedModality) !== "ct";
-  let fMasks: ImageMasks;
-  let mMasks: ImageMasks;
-  if (movingFirst) {
-    mMasks = masksOf("moving", false);
-    fMasks = masksOf("fixed", hasMetal(mMasks));
-  } else {
-    fMasks = masksOf("fixed", false);
-    mMasks = masksOf("moving", hasMetal(fMasks));
+  const order: ("fixed" | "moving")[] = movingFirst ? ["moving", "fixed"] : ["fixed", "moving"];
+  const prepared: Partial<Record<"fixed" | "moving", PreparedImage>> = {};
+  for (let n = 0; n < 2; n++) {
+    const which = order[n];
+    const otherHasMetal = n === 1 && hasMetal(prepared[order[0]]!.masks);
+    const early = given[which];
+    const source = which === "fixed" ? fixed : moving;
+    if (early && early.source !== source)
+      throw new CoxaError("BAD_ARGUMENT", `the prepared ${which} image is not the ${which} image given`);
+    const wantVoid = excludesVoid(o, modalityOf(which), otherHasMetal);
+    prepared[which] =
+      early && early.voidExcluded === wantVoid
+        ? early
+        : early
+          ? { ...early, masks: masksFor(early, which, o, otherHasMetal), voidExcluded: wantVoid }
+          : prepareWith(source, which, o, levelsMm, otherHasMetal, splitter, modalityOf(which));
+    const own = prepared[which]!.seconds;
+    if (!early) {
+      timings.pyramid += own.pyramid;
+      timings.masks += own.masks;
+    } else timings.prepared += own.pyramid + own.masks;
   }
-  timings.masks = seconds(t0);
+  const { pyramid: fPyr, masks: fMasks } = prepared.fixed!;
+  const { pyramid: mPyr, masks: mMasks } = prepared.moving!;
+  t0 = performance.now();
   const L = levelsMm.length;
   const finest = L - 1;
   for (const [name, masks] of [
@@ -465,13 +548,17 @@ function registerWith(
         movingRange: rangeOf(0, sampled === "fixed" ? "moving" : "fixed"),
       });
     };
-    const scanMetric = levelZeroMetric(o.scanSamples, o.seed);
     const scanInv = new Float64Array(16);
+    /** Overlap-weighted cost of a metric sampling `sampled`, for the scan. */
+    const scanCost = (metric: Metric) => (m: Mat4) =>
+      (sampled === "fixed" ? metric.evaluate(m) : metric.evaluate(invertAffine(scanInv, m))) * metric.overlap;
     const scan = scanTranslations({
       start: current,
-      cost: (m) =>
-        (sampled === "fixed" ? scanMetric.evaluate(m) : scanMetric.evaluate(invertAffine(scanInv, m))) *
-        scanMetric.overlap,
+      cost: scanCost(levelZeroMetric(o.scanSamples, o.seed)),
+      screen:
+        o.scanScreenSamples > 0 ? scanCost(levelZeroMetric(o.scanScreenSamples, o.seed + 7)) : undefined,
+      screenKeep: o.scanScreenKeep,
+      screenMin: o.scanScreenMin,
       fixedBody: fBody0,
       fixedGrid: fLevel0,
       movingPointMm: mMoments.centroidMm,
@@ -523,6 +610,7 @@ function registerWith(
     parametersToMatrix(current, "rigid", params, centerMm);
     search = {
       evaluated: scan.evaluated,
+      scored: scan.scored,
       refined: refined.length,
       refinedCosts: refined.map((r) => r.value),
       movedMm: Math.hypot(pBest[0] - pStart[0], pBest[1] - pStart[1], pBest[2] - pStart[2]),
@@ -638,11 +726,14 @@ function registerWith(
     if (metric) {
       const objective = makeObjective(metric, other, model);
       const budget = o.maxEvaluationsPerLevel;
+      // Steps a quarter of the level's (it starts at the forward answer); the tolerances are
+      // scaled to match, so that they mean the same distances in mm as on the level.
+      const stepShare = 1 / 4;
       const r = powell(objective, params, {
-        scales: scaleBy(parameterScales(model, radiusMm), levelsMm[finest] / 8),
+        scales: scaleBy(parameterScales(model, radiusMm), (levelsMm[finest] / 2) * stepShare),
         maxEvaluations: budget,
-        lineTolerance: o.lineToleranceMm,
-        tolerances: { x: o.stepToleranceMm, fRelative: 1e-6 },
+        lineTolerance: o.lineToleranceMm / stepShare,
+        tolerances: { x: o.stepToleranceMm / stepShare, fRelative: 1e-6 },
         onIteration: (info) =>
           progress?.({ stage: stageName, fraction: Math.min(0.99, info.evaluations / budget) }),
       });
@@ -684,6 +775,94 @@ function registerWith(
     timings,
   };
 }
+
+/**
+ * Prepare one image for registerImages ahead of time (its pyramid and masks), e.g. while the
+ * other image is still being read. The masks of an MR assume that the other image shows metal
+ * (signal void excluded); registerImages rebuilds them if it does not.
+ * @param volume - the image, as it will be passed to registerImages
+ * @param which - its role
+ * @param options - the options registerImages will get (threads are not used here)
+ */
+export function prepareImage(
+  volume: Volume,
+  which: "fixed" | "moving",
+  options: RegisterOptions = {},
+): PreparedImage {
+  const o = resolveRegisterOptions(options);
+  return prepareWith(volume, which, o, [...o.levelsMm], true, undefined, undefined);
+}
+
+function prepareWith(
+  volume: Volume,
+  which: "fixed" | "moving",
+  o: ResolvedOptions,
+  levelsMm: readonly number[],
+  otherHasMetal: boolean,
+  splitter: MetricSplitter | undefined,
+  modality: PreparedImage["modality"] | undefined,
+): PreparedImage {
+  if (levelsMm.length === 0) throw new CoxaError("BAD_ARGUMENT", "at least one pyramid level is needed");
+  let t0 = performance.now();
+  const mod =
+    modality ?? (which === "fixed" ? o.fixedModality : o.movingModality) ?? detectModality(volume.data);
+  const work = workingVolume(volume, modalityName(mod), splitter !== undefined, o.cropToContent, levelsMm);
+  // Track voxels above the metal threshold during the pyramid's full-resolution pass, so the
+  // metal mask needs no second pass over a large CT.
+  const pyramid = buildPyramid(work, {
+    levelsMm,
+    trackAbove: o.metalMask ? o.metalHu : undefined,
+    sharer: splitter,
+  });
+  const pyramidSeconds = seconds(t0);
+  t0 = performance.now();
+  const image = {
+    source: volume,
+    modality: mod,
+    work,
+    pyramid,
+    voidExcluded: excludesVoid(o, mod, otherHasMetal),
+  };
+  const masks = masksFor(image, which, o, otherHasMetal);
+  return { ...image, masks, seconds: { pyramid: pyramidSeconds, masks: seconds(t0) } };
+}
+
+/** The level masks of a prepared image (see prepareLevelMasks). */
+function masksFor(
+  image: Pick<PreparedImage, "modality" | "work" | "pyramid">,
+  which: "fixed" | "moving",
+  o: ResolvedOptions,
+  otherHasMetal: boolean,
+): ImageMasks {
+  const isFixed = which === "fixed";
+  const given = isFixed ? o.fixedModality : o.movingModality;
+  const detected = image.modality;
+  return prepareLevelMasks(image.work, image.pyramid, {
+    modality: typeof detected === "string" ? detected : detected.modality,
+    modalityReason: given ? undefined : typeof detected === "string" ? undefined : detected.reason,
+    metalMask: o.metalMask,
+    metalHu: o.metalHu,
+    metalMarginMm: o.metalMarginMm,
+    userMask: isFixed ? o.fixedMask : o.movingMask,
+    userMaskName: isFixed ? o.fixedMaskName : o.movingMaskName,
+    mrVoid: o.mrVoid && otherHasMetal,
+  });
+}
+
+/** Whether an image's masks exclude an MR signal void (prepareLevelMasks' rule). */
+function excludesVoid(
+  o: ResolvedOptions,
+  modality: PreparedImage["modality"],
+  otherHasMetal: boolean,
+): boolean {
+  return o.metalMask && o.mrVoid && otherHasMetal && modalityName(modality) === "mr";
+}
+
+function hasMetal(m: ImageMasks): boolean {
+  return (m.metal?.metalVoxels ?? 0) > 0;
+}
+
+type ResolvedOptions = ReturnType<typeof resolveRegisterOptions>;
 
 /** The modality name of a detection or an override. */
 function modalityName(m: Modality | ReturnType<typeof detectModality>): Modality {

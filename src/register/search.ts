@@ -8,8 +8,10 @@
  * the start transform T0 puts it, so T_p(p) = r and the rotation of T0 is kept. The points p
  * are the voxels of the fixed body mask on a regular grid of `gridMm` (seeded jitter of half a
  * cell, so the scan is not tied to the voxel lattice), plus p = q0 itself. Every candidate costs
- * one metric evaluation. The `keep` best, at least `separationMm` apart (greedy non-maximum
- * suppression), are returned for local refinement, the start always among them.
+ * one metric evaluation — or, with a screening cost, one cheap evaluation, after which only the
+ * best share is scored by the full cost (two stages: most of a body-wide grid is plainly wrong,
+ * and a few hundred samples say so). The `keep` best, at least `separationMm` apart (greedy
+ * non-maximum suppression), are returned for local refinement, the start always among them.
  */
 import { Rng } from "../common/random.js";
 import { identity, inverse, type Mat4, multiply, transformPoint, translation } from "../geometry/mat4.js";
@@ -20,6 +22,13 @@ export interface ScanOptions {
   start: Mat4;
   /** Cost of a fixed->moving transform (lower is better). */
   cost: (fixedToMoving: Mat4) => number;
+  /**
+   * A cheaper, noisier cost (fewer samples) that screens every grid point first: only the best
+   * `screenKeep` share of them (at least `screenMin`) are then scored by `cost`.
+   */
+  screen?: (fixedToMoving: Mat4) => number;
+  screenKeep?: number;
+  screenMin?: number;
   /** Fixed body mask and its grid. */
   fixedBody: Uint8Array;
   fixedGrid: Volume;
@@ -44,7 +53,10 @@ export interface ScanCandidate {
 
 export interface ScanResult {
   candidates: ScanCandidate[];
+  /** Grid points visited (each costs one screening or one full evaluation). */
   evaluated: number;
+  /** Points scored by the full cost. */
+  scored: number;
 }
 
 /** Scan translations of the start transform over the fixed body (see the module header). */
@@ -65,11 +77,13 @@ export function scanTranslations(o: ScanOptions): ScanResult {
   const m = identity();
   const shift = identity();
   const p = [0, 0, 0];
+  const first = o.screen ?? o.cost;
+  const matrixAt = (px: number, py: number, pz: number) => {
+    shift.set(translation(q0[0] - px, q0[1] - py, q0[2] - pz));
+    return multiply(m, o.start, shift);
+  };
   const evaluate = (px: number, py: number, pz: number, isStart: boolean) => {
-    const t = translation(q0[0] - px, q0[1] - py, q0[2] - pz);
-    shift.set(t);
-    multiply(m, o.start, shift);
-    const c = o.cost(m);
+    const c = first(matrixAt(px, py, pz));
     all.push({ matrix: new Float64Array(m), cost: c, pointMm: [px, py, pz], isStart });
   };
   evaluate(q0[0], q0[1], q0[2], true);
@@ -87,6 +101,23 @@ export function scanTranslations(o: ScanOptions): ScanResult {
         evaluate(p[0], p[1], p[2], false);
       }
     }
+  }
+  const visited = all.length;
+  let scored = all.length;
+  if (o.screen) {
+    // Score the best of the screened points (and the start) with the full cost; the rest drop out.
+    const keepN = Math.max(o.screenMin ?? 50, Math.ceil((o.screenKeep ?? 0.1) * all.length));
+    const ranked = all
+      .map((_c, idx) => idx)
+      .filter((idx) => Number.isFinite(all[idx].cost))
+      .sort((a, b) => all[a].cost - all[b].cost)
+      .slice(0, keepN);
+    if (!ranked.includes(0)) ranked.push(0);
+    const kept = ranked.map((idx) => all[idx]);
+    for (const c of kept) c.cost = o.cost(c.matrix);
+    all.length = 0;
+    all.push(...kept);
+    scored = kept.length;
   }
   const order = all
     .map((_c, idx) => idx)
@@ -110,6 +141,6 @@ export function scanTranslations(o: ScanOptions): ScanResult {
     if (far) kept.push(c);
     if (kept.length >= o.keep) break;
   }
-  if (!kept.some((c) => c.isStart)) kept.push(all[0]);
-  return { candidates: kept, evaluated: all.length };
+  if (!kept.some((c) => c.isStart)) kept.push(all.find((c) => c.isStart)!);
+  return { candidates: kept, evaluated: visited, scored };
 }
