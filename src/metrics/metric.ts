@@ -202,7 +202,12 @@ class HistogramMetric implements Metric {
   constructor(kind: MetricKind, ctx: Context, fixed: Volume, moving: Volume, options: MetricOptions) {
     this.kind = kind;
     this.ctx = ctx;
-    const useSplit = options.splitter !== undefined && ctx.samples.count >= options.splitter.minSamples;
+    // Worth it only when an evaluation is long: many samples into a large moving image (small
+    // images stay in cache and are fast on one thread; the hand-over costs the same either way).
+    const useSplit =
+      options.splitter !== undefined &&
+      ctx.samples.count >= options.splitter.minSamples &&
+      options.moving.count >= options.splitter.minMovingVoxels;
     this.splitter = useSplit ? options.splitter : undefined;
     this.split = useSplit ? Math.floor(ctx.samples.count / 2) : ctx.samples.count;
     const bins = options.bins ?? 32;

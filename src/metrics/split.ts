@@ -29,9 +29,12 @@ export class MetricSplitter implements WorkSharer {
   private readonly shared = new WeakMap<object, ArrayBufferView>();
   /** Smallest sample set worth splitting. */
   readonly minSamples: number;
+  /** Smallest moving image (voxels) worth splitting for. */
+  readonly minMovingVoxels: number;
 
-  constructor(minSamples = 16000) {
+  constructor(minSamples = 16000, minMovingVoxels = 4_000_000) {
     this.minSamples = minSamples;
+    this.minMovingVoxels = minMovingVoxels;
     this.worker = new Worker(workerScript(import.meta.url, "split-worker"));
     this.worker.on("error", (err) => {
       this.failed = err;

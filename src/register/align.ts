@@ -18,7 +18,7 @@ import { softwareInfo } from "../common/version.js";
 import { defaultThreads } from "../common/workers.js";
 import { evaluateLandmarks, landmarkEvaluationToJson } from "../geometry/landmark-evaluation.js";
 import { type LandmarkPairs, pairLandmarks, readLandmarks } from "../geometry/landmarks.js";
-import { inverse, toRows, transformPoint } from "../geometry/mat4.js";
+import { inverse, type Mat4, toRows, transformPoint } from "../geometry/mat4.js";
 import { buildTransformRecord, imageRef, writeTransform } from "../geometry/transform-file.js";
 import { describeParameters, type TransformModel } from "../geometry/transform-model.js";
 import { DATATYPES } from "../image/datatypes.js";
@@ -255,7 +255,28 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
     const moving = movingImage.volume;
     // ---- Register ----
     t0 = performance.now();
-    const reg = registerOrExplain(options, fixed, moving, { ...regOptions, landmarks: pairs, prepared });
+    // The resampling of the moving image needs only the forward answer: it starts on the pool's
+    // threads as soon as that is known and runs while the inverse-consistency check does.
+    const movingDatatype = movingImage.header.scaled ? "float32" : movingImage.header.datatype;
+    const outDatatype = DATATYPES[movingDatatype].integer ? movingDatatype : "float32";
+    const resampleWith = (m: Mat4) =>
+      resampleOnto(moving, fixed, m, {
+        interp: "linear",
+        fill: 0,
+        datatype: outDatatype,
+        pool,
+        onProgress: progress,
+      });
+    let resampling: ReturnType<typeof resampleWith> | undefined;
+    const reg = registerOrExplain(options, fixed, moving, {
+      ...regOptions,
+      landmarks: pairs,
+      prepared,
+      onForwardResult: (m) => {
+        resampling = resampleWith(m);
+        resampling.catch(() => undefined);
+      },
+    });
     timing.register = seconds(t0);
     for (const [k, v] of Object.entries(reg.timings)) timing[`register_${k}`] = v;
 
@@ -316,15 +337,8 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
     // ---- Resample the moving image onto the fixed grid ----
     t0 = performance.now();
     progress?.({ stage: "resample", fraction: 0 });
-    const movingDatatype = movingImage.header.scaled ? "float32" : movingImage.header.datatype;
-    const outDatatype = DATATYPES[movingDatatype].integer ? movingDatatype : "float32";
-    const { volume: movingOnFixed } = await resampleOnto(moving, fixed, reg.matrix, {
-      interp: "linear",
-      fill: 0,
-      datatype: outDatatype,
-      pool,
-      onProgress: progress,
-    });
+    const { volume: movingOnFixed } = await (resampling ?? resampleWith(reg.matrix));
+    // Only what was left of it after the registration (it started before the inverse check).
     timing.resample = seconds(t0);
 
     // ---- Write ----

@@ -97,6 +97,12 @@ export interface RegisterOptions {
   inverseConsistency?: boolean;
   seed?: number;
   onProgress?: ProgressFn;
+  /**
+   * Called with the forward answer (fixed -> moving) as soon as the levels are done, before the
+   * inverse-consistency run, so that a caller can start work that needs only the answer (e.g.
+   * resampling on worker threads) while the check runs. The matrix is the caller's to keep.
+   */
+  onForwardResult?: (fixedToMoving: Mat4) => void;
   /** Images already prepared with prepareImage (same options), e.g. while the other was read. */
   prepared?: { fixed?: PreparedImage; moving?: PreparedImage };
 }
@@ -241,7 +247,7 @@ export interface RegistrationResult {
 const seconds = (t0: number) => (performance.now() - t0) / 1000;
 
 /** Volumes from this size on have their pyramid passes shared with the helper thread. */
-const SHARE_PYRAMID_VOXELS = 2_000_000;
+const SHARE_PYRAMID_VOXELS = 8_000_000;
 /** A CT from this size on is cropped to its content plus this margin (mm) before the pyramid. */
 const CROP_MIN_VOXELS = 2_000_000;
 const CROP_MARGIN_MM = 20;
@@ -272,7 +278,7 @@ function workingVolume(
         box.max[a] = Math.min(v.dims[a], box.min[a] + span);
       }
       const kept = (box.max[0] - box.min[0]) * (box.max[1] - box.min[1]) * (box.max[2] - box.min[2]);
-      if (kept < 0.9 * v.count) return cropVolume(v, box, share);
+      if (kept < 0.9 * v.count) return cropVolume(v, box, share && kept >= SHARE_PYRAMID_VOXELS);
     }
   }
   return share && v.count >= SHARE_PYRAMID_VOXELS ? v.withData(toShared(v.data, v.datatype)) : v;
@@ -685,6 +691,7 @@ function registerWith(
 
   // Similarity at the start, measured with the finest metric.
   const finalMatrix = new Float64Array(current);
+  options.onForwardResult?.(new Float64Array(finalMatrix));
   const metricAt = (m: Mat4) =>
     -(finestSampled === "fixed" ? finestMetric!.evaluate(m) : finestMetric!.evaluate(inverse(m)));
   const metricStart = metricAt(startMatrix);

@@ -227,13 +227,14 @@ export async function resampleOnto(
     }
     const outShared = sharedArray(outDatatype, n);
     const outToSrc = Array.from(targetToMovingIndex(moving, target, fixedToMoving));
+    // One task per thread, each taking every threads-th slice (interleaved, so that the parts
+    // of the grid the source does not cover are shared out evenly): every task is posted at
+    // once, so the threads work through even while the main thread is busy elsewhere.
     const nz = target.dims[2];
-    const slabs = Math.min(nz, threads * 8);
-    const slab = Math.ceil(nz / slabs);
     const tasks: Promise<number>[] = [];
     let done = 0;
-    for (let k = 0; k < nz; k += slab) {
-      const k1 = Math.min(nz, k + slab);
+    for (let t = 0; t < Math.min(threads, nz); t++) {
+      const share = Math.ceil((nz - t) / threads);
       const task: WorkerSlabTask = {
         kind: "slab",
         job: {
@@ -247,8 +248,9 @@ export async function resampleOnto(
           out: { buffer: outShared.buffer as SharedArrayBuffer, datatype: outDatatype, length: n },
           outDims: [target.dims[0], target.dims[1], target.dims[2]],
           outToSrc,
-          k0: k,
-          k1,
+          k0: t,
+          k1: nz,
+          kStep: threads,
           fill,
           outInteger: info.integer,
           outMin: info.min,
@@ -257,7 +259,7 @@ export async function resampleOnto(
       };
       tasks.push(
         pool.run<number>(task).then((inside) => {
-          done += k1 - k;
+          done += share;
           options.onProgress?.({ stage: "resample", fraction: done / nz });
           return inside;
         }),

@@ -23,9 +23,10 @@ export interface SlabJob {
   outDims: readonly [number, number, number];
   /** Output index -> source index, 12 numbers (3 rows of 4). */
   outToSrc: ArrayLike<number>;
-  /** Output slices k0 <= k < k1. */
+  /** Output slices k0 <= k < k1, every kStep-th (default 1: all). */
   k0: number;
   k1: number;
+  kStep?: number;
   /** Value written where the source has no data. */
   fill: number;
   /** Integer output: round to nearest and clamp to [outMin, outMax]. */
@@ -65,7 +66,8 @@ export function resampleSlab(job: SlabJob): number {
   const nxy = nx * ny;
   const range = new Float64Array(2);
   let inside = 0;
-  for (let k = job.k0; k < job.k1; k++) {
+  const kStep = job.kStep ?? 1;
+  for (let k = job.k0; k < job.k1; k += kStep) {
     for (let j = 0; j < oy; j++) {
       const rowStart = ox * (j + oy * k);
       const x0 = m01 * j + m02 * k + m03;

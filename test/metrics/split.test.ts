@@ -22,7 +22,7 @@ function blobs(n: number, shift: number): Volume {
 }
 
 describe("MetricSplitter", () => {
-  const splitter = new MetricSplitter(100);
+  const splitter = new MetricSplitter(100, 0);
   afterAll(() => splitter.close());
   const fixed = blobs(32, 0);
   const moving = blobs(32, 1.5);

@@ -34,7 +34,9 @@ describe("buildPyramid with a helper thread", () => {
     for (let l = 0; l < 3; l++) {
       expect(isShared(both.levels[l].volume.data)).toBe(true);
       expect(both.levels[l].volume.dims).toEqual(single.levels[l].volume.dims);
-      expect(Array.from(both.levels[l].volume.indexToWorld)).toEqual(Array.from(single.levels[l].volume.indexToWorld));
+      expect(Array.from(both.levels[l].volume.indexToWorld)).toEqual(
+        Array.from(single.levels[l].volume.indexToWorld),
+      );
       const a = single.levels[l].volume.data;
       const b = both.levels[l].volume.data;
       let differ = 0;

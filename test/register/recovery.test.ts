@@ -60,7 +60,8 @@ describe("registerImages recovers the phantom's truth", () => {
     for (let q = 0; q < 16; q++) expect(Math.abs(cropped.matrix[q] - whole.matrix[q])).toBeLessThan(1e-9);
     expect(cropped.levels.map((l) => l.evaluations)).toEqual(whole.levels.map((l) => l.evaluations));
     // ... and the crop really was smaller than the CT.
-    expect(cropped.fixedPyramid.levels[2].volume.count).toBeLessThan(whole.fixedPyramid.levels[2].volume.count);
+    expect(cropped.fixedPyramid.levels[2].volume.count).toBeLessThan(
+      whole.fixedPyramid.levels[2].volume.count,
+    );
   });
 });
-
