@@ -20,6 +20,7 @@ import { type NIFTI1, type NIFTI2, readHeader } from "nifti-reader-js";
 import { CoxaError } from "../common/errors.js";
 import { identity, isFiniteMat, type Mat4, relativeDeterminant } from "../geometry/mat4.js";
 import { DATATYPES, type Datatype, datatypeFromCode, type VoxelArray } from "./datatypes.js";
+import { inflateInWorker } from "./inflate.js";
 import { quaternionToMatrix } from "./nifti-quaternion.js";
 import { Volume } from "./volume.js";
 
@@ -71,6 +72,8 @@ export interface NiftiImage {
 
 const HEADER_PROBE_BYTES = 65536;
 const GZIP_MARGIN_BYTES = 1 << 20;
+/** Compressed files from this size on are inflated on a worker thread of their own. */
+const WORKER_INFLATE_BYTES = 4 << 20;
 const gunzipAsync = promisify(gunzip) as (
   buf: Uint8Array,
   opts: { maxOutputLength: number },
@@ -119,8 +122,10 @@ export function parseNifti(bytes: Uint8Array, name: string, options: ReadNiftiOp
 }
 
 /**
- * Read one 3-D volume from a NIfTI file, inflating gzip off the main thread (the libuv thread
- * pool), so that several images can be read at once. Same checks and result as readNifti.
+ * Read one 3-D volume from a NIfTI file, inflating gzip off the main thread (a worker thread of
+ * its own for large files, src/image/inflate.ts, else the libuv thread pool), so that several
+ * images can be read at once and the main thread can work meanwhile. Same checks and result as
+ * readNifti.
  */
 export async function readNiftiAsync(path: string, options: ReadNiftiOptions = {}): Promise<NiftiImage> {
   if (!existsSync(path)) throw new CoxaError("FILE_MISSING", "file does not exist", path);
@@ -141,7 +146,11 @@ export async function readNiftiAsync(path: string, options: ReadNiftiOptions = {
   let whole: Uint8Array = raw;
   if (plan.gz) {
     try {
-      whole = await gunzipAsync(raw, { maxOutputLength: plan.needed + GZIP_MARGIN_BYTES });
+      const maxOutputLength = plan.needed + GZIP_MARGIN_BYTES;
+      whole =
+        raw.length >= WORKER_INFLATE_BYTES
+          ? await inflateInWorker(raw, maxOutputLength)
+          : await gunzipAsync(raw, { maxOutputLength });
     } catch (err) {
       throw inflateError(err, plan.needed, path);
     }

@@ -133,6 +133,11 @@ function storeFrame(
 ): void {
   const n = out.length;
   const unit = slope === 1 && inter === 0;
+  if (unit && src.constructor === out.constructor) {
+    // Same datatype, no scaling: a plain copy (every value fits).
+    out.set(src as never);
+    return;
+  }
   if (!integer) {
     if (unit) for (let i = 0; i < n; i++) out[i] = src[i];
     else for (let i = 0; i < n; i++) out[i] = (src[i] - inter) / slope;

@@ -56,6 +56,8 @@ export interface MetricOptions {
   moving: Volume;
   /** Fixed voxels allowed as samples (nonzero), fixed grid. */
   fixedMask?: Uint8Array;
+  /** Voxels set in fixedMask, when known and all of them have finite values (saves a pass). */
+  fixedMaskCount?: number;
   /** Moving voxels allowed (nonzero), moving grid. */
   movingMask?: Uint8Array;
   /** Number of fixed samples; default 50,000 (all voxels if fewer). */
@@ -129,6 +131,7 @@ export function createMetric(kind: MetricKind, options: MetricOptions): Metric {
     mask: options.fixedMask,
     samples: options.samples,
     seed: options.seed,
+    candidates: options.fixedMaskCount,
   });
   const minOverlap = options.minOverlap ?? 0.1;
   const minSamples = options.minSamples ?? 64;
@@ -217,7 +220,9 @@ class HistogramMetric implements Metric {
     this.bins = bins;
     this.box = options.parzen === "box";
     const percents = options.percentiles ?? [0.5, 99.5];
-    this.fixedRange = options.fixedRange ?? robustRange(fixed.data, options.fixedMask, percents);
+    this.fixedRange =
+      options.fixedRange ??
+      robustRange(fixed.data, options.fixedMask, percents, undefined, options.fixedMaskCount);
     this.movingRange = options.movingRange ?? robustRange(moving.data, options.movingMask, percents);
     for (const r of [this.fixedRange, this.movingRange]) {
       if (!(r[1] > r[0]) || !Number.isFinite(r[0]) || !Number.isFinite(r[1])) {

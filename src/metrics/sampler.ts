@@ -39,6 +39,8 @@ export interface SampleOptions {
   samples?: number;
   /** Seed of the random choice; default 1. */
   seed?: number;
+  /** Voxels set in `mask`, when known and all of them have finite values (saves a pass). */
+  candidates?: number;
 }
 
 /** Default number of samples per level. */
@@ -58,7 +60,8 @@ export function createSampleSet(fixed: Volume, options: SampleOptions = {}): Sam
     throw new CoxaError("BAD_DIMS", `fixed mask has ${mask.length} voxels, the fixed image ${n}`);
   }
   let candidates = 0;
-  if (mask) for (let q = 0; q < n; q++) candidates += mask[q] !== 0 && data[q] === data[q] ? 1 : 0;
+  if (options.candidates !== undefined && mask) candidates = options.candidates;
+  else if (mask) for (let q = 0; q < n; q++) candidates += mask[q] !== 0 && data[q] === data[q] ? 1 : 0;
   else for (let q = 0; q < n; q++) candidates += data[q] === data[q] ? 1 : 0;
   if (candidates === 0) throw new CoxaError("NO_OVERLAP", "the fixed mask leaves no voxel to sample");
   const wanted = Math.max(1, Math.floor(options.samples ?? DEFAULT_SAMPLES));
@@ -132,6 +135,7 @@ export function percentile(values: ArrayLike<number>, percent: number): number {
  * @param percents - [low, high] in percent; default [0.5, 99.5]
  * @param maxValues - about this many voxels are used (every step-th voxel inside the mask, exact
  *   for masks of up to twice this size); default 200,000
+ * @param maskCount - voxels set in `mask`, when known (saves a counting pass)
  * @returns [lo, hi] with hi > lo (widened by 1 unit for a constant image)
  * @throws CoxaError NO_OVERLAP when there is no finite value
  */
@@ -140,25 +144,29 @@ export function robustRange(
   mask?: Uint8Array,
   percents: readonly [number, number] = [0.5, 99.5],
   maxValues = 200_000,
+  maskCount?: number,
 ): [number, number] {
   // Take every step-th voxel of the mask (exact, step 1, up to 2 x maxValues of them); fall
   // back to every voxel when NaNs leave too few.
   let inside = data.length;
-  if (mask) {
+  if (mask && maskCount !== undefined) inside = maskCount;
+  else if (mask) {
     inside = 0;
     for (let q = 0; q < mask.length; q++) inside += mask[q] !== 0 ? 1 : 0;
   }
   let picked = pickValues(data, mask, Math.max(1, Math.floor(inside / (2 * maxValues))));
   if (picked.length < 1000) picked = pickValues(data, mask, 1);
   if (picked.length === 0) throw new CoxaError("NO_OVERLAP", "no finite voxel inside the mask");
-  const c = picked.length;
-  const values = picked.subarray(0, c);
-  values.sort();
+  const values = picked;
+  // Order statistics by selection (linear time), not a full sort.
   const at = (p: number) => {
     const pos = (p / 100) * (values.length - 1);
     const lo = Math.floor(pos);
-    const hi = Math.min(values.length - 1, lo + 1);
-    return values[lo] + (pos - lo) * (values[hi] - values[lo]);
+    const a = selectKth(values, lo);
+    if (lo + 1 >= values.length || pos === lo) return a;
+    let b = Number.POSITIVE_INFINITY;
+    for (let i = lo + 1; i < values.length; i++) if (values[i] < b) b = values[i];
+    return a + (pos - lo) * (b - a);
   };
   let lo = at(percents[0]);
   let hi = at(percents[1]);
@@ -167,6 +175,45 @@ export function robustRange(
     hi += 0.5;
   }
   return [lo, hi];
+}
+
+/**
+ * The k-th smallest value (0-based) of `a`, reordering `a` so that a[k] holds it, every
+ * element before k is <= it and every element after is >= it (Hoare's selection, median of
+ * three pivots).
+ */
+export function selectKth(a: Float64Array, k: number): number {
+  let lo = 0;
+  let hi = a.length - 1;
+  while (hi > lo) {
+    const mid = (lo + hi) >>> 1;
+    // Median of three into a[mid], with a[lo] <= a[mid] <= a[hi].
+    if (a[mid] < a[lo]) swap(a, mid, lo);
+    if (a[hi] < a[lo]) swap(a, hi, lo);
+    if (a[hi] < a[mid]) swap(a, hi, mid);
+    const pivot = a[mid];
+    let i = lo;
+    let j = hi;
+    while (i <= j) {
+      while (a[i] < pivot) i++;
+      while (a[j] > pivot) j--;
+      if (i <= j) {
+        swap(a, i, j);
+        i++;
+        j--;
+      }
+    }
+    if (k <= j) hi = j;
+    else if (k >= i) lo = i;
+    else return a[k];
+  }
+  return a[k];
+}
+
+function swap(a: Float64Array, i: number, j: number): void {
+  const t = a[i];
+  a[i] = a[j];
+  a[j] = t;
 }
 
 /**

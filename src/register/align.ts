@@ -636,9 +636,18 @@ function metalOnFixedGrid(reg: RegistrationResult, fixed: Volume, metalHu: numbe
     [0, 0, 0],
     [0, 0, 0],
   ];
-  for (let k = 0, q = 0; k < nz; k++) {
-    for (let j = 0; j < ny; j++) {
-      for (let i = 0; i < nx; i++, q++) {
+  // Only the box where the registration's pyramid pass found such voxels (when it looked for
+  // this threshold), else the whole grid.
+  const tracked = reg.fixedPyramid.highValues?.threshold === metalHu;
+  if (tracked && !reg.fixedMetalBox) return undefined;
+  const box = tracked && reg.fixedMetalBox ? reg.fixedMetalBox : { min: [0, 0, 0], max: [nx, ny, nz] };
+  for (let k = Math.max(0, box.min[2]); k < Math.min(nz, box.max[2]); k++) {
+    for (let j = Math.max(0, box.min[1]); j < Math.min(ny, box.max[1]); j++) {
+      for (
+        let i = Math.max(0, box.min[0]), q = i + nx * (j + ny * k);
+        i < Math.min(nx, box.max[0]);
+        i++, q++
+      ) {
         if (!(d[q] >= metalHu)) continue;
         mask[q] = 1;
         const x = m[0] * i + m[1] * j + m[2] * k + m[3];

@@ -23,7 +23,7 @@ import { CoxaError } from "../common/errors.js";
 import type { ProgressFn } from "../common/progress.js";
 import { toShared } from "../common/shared-arrays.js";
 import type { LandmarkPairs } from "../geometry/landmarks.js";
-import { identity, inverse, invertAffine, type Mat4 } from "../geometry/mat4.js";
+import { identity, inverse, invertAffine, type Mat4, transformPoint } from "../geometry/mat4.js";
 import {
   convertParameters,
   matrixToParameters,
@@ -35,6 +35,7 @@ import { contentBox, cropVolume } from "../image/crop.js";
 import { detectModality, type Modality } from "../image/modality.js";
 import type { Volume } from "../image/volume.js";
 import { DEFAULT_BODY_HU } from "../masks/body.js";
+import type { VoxelBox } from "../masks/components.js";
 import { type ImageMasks, prepareLevelMasks } from "../masks/level-masks.js";
 import { createMetric, type Metric, type MetricKind } from "../metrics/metric.js";
 import { robustRange } from "../metrics/sampler.js";
@@ -181,6 +182,8 @@ export interface LevelRecord {
   finalSimilarity: number;
   overlap: number;
   seconds: number;
+  /** Of which choosing the sampled image and building the metric (sample set, ranges). */
+  setupSeconds: number;
   /** Best similarity so far, after each evaluation (at most ~200 points). */
   trace: number[];
 }
@@ -230,6 +233,11 @@ export interface RegistrationResult {
   movingMasks: ImageMasks;
   fixedPyramid: Pyramid;
   movingPyramid: Pyramid;
+  /**
+   * Voxel box (on the fixed image's own grid) of its voxels at or above the metal threshold,
+   * when the metal mask was on (found during the pyramid pass); undefined when there are none.
+   */
+  fixedMetalBox: VoxelBox | undefined;
   /**
    * Seconds per stage; `prepared` is the pyramid and mask time of images prepared before the
    * call (prepareImage), not part of the others.
@@ -454,7 +462,8 @@ function registerWith(
     if (!r) {
       const pyr = image === "fixed" ? fPyr : mPyr;
       const masks = image === "fixed" ? fMasks : mMasks;
-      r = robustRange(pyr.levels[level].volume.data, masks.levels[level].include);
+      const lm = masks.levels[level];
+      r = robustRange(pyr.levels[level].volume.data, lm.include, undefined, undefined, lm.includeVoxels);
       ranges.set(key, r);
     }
     return r;
@@ -473,7 +482,7 @@ function registerWith(
     samples: number,
     seed: number,
     leverScaled = false,
-    givenRoi?: Uint8Array,
+    givenRoi?: { roi: Uint8Array; count: number },
   ) => {
     const fV = fPyr.levels[level].volume;
     const mV = mPyr.levels[level].volume;
@@ -481,11 +490,13 @@ function registerWith(
     const mInc = mMasks.levels[level].include;
     const [sV, oV, sInc, oInc, toOther] =
       sampled === "fixed" ? [fV, mV, fInc, mInc, current] : [mV, fV, mInc, fInc, inverse(current)];
-    let roi = givenRoi;
+    let roi = givenRoi?.roi;
+    let roiCount = givenRoi?.count ?? 0;
     if (!roi) {
       roi = new Uint8Array(sInc.length);
-      const n = maskInsideOther(roi, sInc, sV, oV, toOther, o.roiMarginMm);
-      if (n === 0) throw new CoxaError("NO_OVERLAP", "the images do not overlap at the start transform");
+      roiCount = maskInsideOther(roi, sInc, sV, oV, toOther, o.roiMarginMm);
+      if (roiCount === 0)
+        throw new CoxaError("NO_OVERLAP", "the images do not overlap at the start transform");
     }
     let count = samples;
     if (leverScaled) {
@@ -496,6 +507,7 @@ function registerWith(
       fixed: sV,
       moving: oV,
       fixedMask: roi,
+      fixedMaskCount: roiCount,
       movingMask: oInc,
       samples: count,
       seed,
@@ -508,7 +520,10 @@ function registerWith(
   };
 
   /** Which image to sample on a level: the one whose mask inside the other's view is smaller. */
-  const chooseSampled = (level: number, current: Mat4): { sampled: "fixed" | "moving"; roi: Uint8Array } => {
+  const chooseSampled = (
+    level: number,
+    current: Mat4,
+  ): { sampled: "fixed" | "moving"; roi: { roi: Uint8Array; count: number } } => {
     const fV = fPyr.levels[level].volume;
     const mV = mPyr.levels[level].volume;
     const fInc = fMasks.levels[level].include;
@@ -523,7 +538,9 @@ function registerWith(
     if (o.sampleFrom === "fixed" || o.sampleFrom === "moving") sampled = o.sampleFrom;
     else if (o.sampleFrom === "coarser") sampled = voxelVolume(mV) > voxelVolume(fV) ? "moving" : "fixed";
     else sampled = nm * voxelVolume(mV) < 0.7 * nf * voxelVolume(fV) ? "moving" : "fixed";
-    return { sampled, roi: sampled === "fixed" ? roiF : roiM };
+    return sampled === "fixed"
+      ? { sampled, roi: { roi: roiF, count: nf } }
+      : { sampled, roi: { roi: roiM, count: nm } };
   };
 
   const current = identity();
@@ -545,6 +562,7 @@ function registerWith(
         fixed: sV,
         moving: oV,
         fixedMask: sImg.levels[0].include,
+        fixedMaskCount: sImg.levels[0].includeVoxels,
         movingMask: oImg.levels[0].include,
         samples,
         seed,
@@ -642,6 +660,7 @@ function registerWith(
     const { sampled, roi } = chooseSampled(l, current);
     const samples = o.samples[Math.min(l, o.samples.length - 1)];
     const metric = buildMetric(l, sampled, current, samples, o.seed + 17 * (l + 1), l === finest, roi);
+    const setupSeconds = seconds(tl);
     const trace: number[] = [];
     const objective = makeObjective(metric, sampled, model, trace);
     const startValue = objective(params);
@@ -679,6 +698,7 @@ function registerWith(
       finalSimilarity: -finalValue,
       overlap: metric.overlap,
       seconds: seconds(tl),
+      setupSeconds,
       trace: thin(trace, 200),
     });
     progress?.({ stage: stageName, fraction: 1, level: l, metric: -finalValue });
@@ -778,6 +798,7 @@ function registerWith(
     fixedMasks: fMasks,
     movingMasks: mMasks,
     fixedPyramid: fPyr,
+    fixedMetalBox: onSourceGrid(fPyr.highValues?.bounds, prepared.fixed!.work, fixed),
     movingPyramid: mPyr,
     timings,
   };
@@ -854,6 +875,20 @@ function masksFor(
     userMaskName: isFixed ? o.fixedMaskName : o.movingMaskName,
     mrVoid: o.mrVoid && otherHasMetal,
   });
+}
+
+/** A voxel box of the working volume (a crop of `source`) on the source's own grid. */
+function onSourceGrid(box: VoxelBox | undefined, work: Volume, source: Volume): VoxelBox | undefined {
+  if (!box) return undefined;
+  const p = [0, 0, 0];
+  work.indexToWorldPoint(p, 0, 0, 0);
+  const q = [0, 0, 0];
+  transformPoint(q, source.worldToIndex, p[0], p[1], p[2]);
+  const off = q.map((v) => Math.round(v));
+  return {
+    min: [box.min[0] + off[0], box.min[1] + off[1], box.min[2] + off[2]],
+    max: [box.max[0] + off[0], box.max[1] + off[1], box.max[2] + off[2]],
+  };
 }
 
 /** Whether an image's masks exclude an MR signal void (prepareLevelMasks' rule). */

@@ -1,0 +1,43 @@
+/**
+ * gzip inflation on a worker thread of its own, for large files (src/image/inflate-worker.ts).
+ * The result and the errors are those of zlib's gunzip: a RangeError (code
+ * ERR_BUFFER_TOO_LARGE) past `maxOutputLength`, Z_BUF_ERROR for a truncated stream, Z_DATA_ERROR
+ * for a corrupt one.
+ */
+import { Worker } from "node:worker_threads";
+import { workerScript } from "../common/workers.js";
+
+/**
+ * Inflate `input` (a whole gzip stream) on a new worker thread.
+ * @param input - compressed bytes; its memory is handed to the worker (do not use it after)
+ * @param maxOutputLength - refuse to inflate beyond this many bytes
+ */
+export function inflateInWorker(input: Uint8Array, maxOutputLength: number): Promise<Uint8Array> {
+  const whole = input.byteOffset === 0 && input.byteLength === input.buffer.byteLength;
+  const buffer = whole
+    ? (input.buffer as ArrayBuffer)
+    : (input.buffer.slice(input.byteOffset, input.byteOffset + input.byteLength) as ArrayBuffer);
+  return new Promise((resolve, reject) => {
+    const worker = new Worker(workerScript(import.meta.url, "inflate-worker"), {
+      workerData: { input: buffer, maxOutputLength },
+      transferList: [buffer],
+    });
+    let settled = false;
+    worker.once("message", (m: { ok: boolean; buffer?: ArrayBuffer; name?: string; code?: string; message?: string }) => {
+      settled = true;
+      if (m.ok) resolve(new Uint8Array(m.buffer!));
+      else {
+        const err = m.name === "RangeError" ? new RangeError(m.message) : new Error(m.message);
+        Object.assign(err, { code: m.code });
+        reject(err);
+      }
+      void worker.terminate();
+    });
+    worker.once("error", (err) => {
+      if (!settled) reject(err);
+    });
+    worker.once("exit", (code) => {
+      if (!settled) reject(new Error(`inflate worker exited with code ${code}`));
+    });
+  });
+}
