@@ -11,7 +11,9 @@ try {
   const out = gunzipSync(new Uint8Array(input), { maxOutputLength });
   // A large output Buffer owns its ArrayBuffer; send it without copying.
   const whole = out.byteOffset === 0 && out.byteLength === out.buffer.byteLength;
-  const buffer = whole ? (out.buffer as ArrayBuffer) : out.buffer.slice(out.byteOffset, out.byteOffset + out.byteLength);
+  const buffer = whole
+    ? (out.buffer as ArrayBuffer)
+    : out.buffer.slice(out.byteOffset, out.byteOffset + out.byteLength);
   parentPort!.postMessage({ ok: true, buffer }, [buffer as ArrayBuffer]);
 } catch (err) {
   const e = err as NodeJS.ErrnoException;

@@ -23,16 +23,19 @@ export function inflateInWorker(input: Uint8Array, maxOutputLength: number): Pro
       transferList: [buffer],
     });
     let settled = false;
-    worker.once("message", (m: { ok: boolean; buffer?: ArrayBuffer; name?: string; code?: string; message?: string }) => {
-      settled = true;
-      if (m.ok) resolve(new Uint8Array(m.buffer!));
-      else {
-        const err = m.name === "RangeError" ? new RangeError(m.message) : new Error(m.message);
-        Object.assign(err, { code: m.code });
-        reject(err);
-      }
-      void worker.terminate();
-    });
+    worker.once(
+      "message",
+      (m: { ok: boolean; buffer?: ArrayBuffer; name?: string; code?: string; message?: string }) => {
+        settled = true;
+        if (m.ok) resolve(new Uint8Array(m.buffer!));
+        else {
+          const err = m.name === "RangeError" ? new RangeError(m.message) : new Error(m.message);
+          Object.assign(err, { code: m.code });
+          reject(err);
+        }
+        void worker.terminate();
+      },
+    );
     worker.once("error", (err) => {
       if (!settled) reject(err);
     });
