@@ -349,6 +349,7 @@ function registerWith(
     detectModality((which === "fixed" ? fixed : moving).data);
   const fixedModality = modalityOf("fixed");
   const movingModality = modalityOf("moving");
+  const modalities = { fixed: fixedModality, moving: movingModality };
   const movingFirst = modalityName(movingModality) === "ct" && modalityName(fixedModality) !== "ct";
   const order: ("fixed" | "moving")[] = movingFirst ? ["moving", "fixed"] : ["fixed", "moving"];
   const prepared: Partial<Record<"fixed" | "moving", PreparedImage>> = {};
@@ -359,13 +360,13 @@ function registerWith(
     const source = which === "fixed" ? fixed : moving;
     if (early && early.source !== source)
       throw new CoxaError("BAD_ARGUMENT", `the prepared ${which} image is not the ${which} image given`);
-    const wantVoid = excludesVoid(o, modalityOf(which), otherHasMetal);
+    const wantVoid = excludesVoid(o, modalities[which], otherHasMetal);
     prepared[which] =
       early && early.voidExcluded === wantVoid
         ? early
         : early
           ? { ...early, masks: masksFor(early, which, o, otherHasMetal), voidExcluded: wantVoid }
-          : prepareWith(source, which, o, levelsMm, otherHasMetal, splitter, modalityOf(which));
+          : prepareWith(source, which, o, levelsMm, otherHasMetal, splitter, modalities[which]);
     const own = prepared[which]!.seconds;
     if (!early) {
       timings.pyramid += own.pyramid;
