@@ -27,17 +27,25 @@ export function maskBounds(mask: Uint8Array, dims: Dims): VoxelBox | undefined {
   return thresholdBounds(mask, dims, 1);
 }
 
-/** Voxel box of the voxels >= threshold (one read-only pass), or undefined. */
-export function thresholdBounds(data: VoxelArray, dims: Dims, threshold: number): VoxelBox | undefined {
+/**
+ * Voxel box of the voxels >= threshold (one read-only pass), or undefined. With `step` > 1 only
+ * every step-th voxel along each axis is visited (a quick, possibly slightly small box).
+ */
+export function thresholdBounds(
+  data: VoxelArray,
+  dims: Dims,
+  threshold: number,
+  step = 1,
+): VoxelBox | undefined {
   const [nx, ny, nz] = dims;
   const min: [number, number, number] = [nx, ny, nz];
   const max: [number, number, number] = [-1, -1, -1];
-  for (let k = 0; k < nz; k++)
-    for (let j = 0; j < ny; j++) {
+  for (let k = 0; k < nz; k += step)
+    for (let j = 0; j < ny; j += step) {
       const row = nx * (j + ny * k);
       let first = -1;
       let last = -1;
-      for (let i = 0; i < nx; i++) {
+      for (let i = 0; i < nx; i += step) {
         if (data[row + i] >= threshold) {
           if (first < 0) first = i;
           last = i;

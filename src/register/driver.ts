@@ -31,11 +31,11 @@ import {
   parametersToMatrix,
   type TransformModel,
 } from "../geometry/transform-model.js";
-import { contentBox, cropVolume } from "../image/crop.js";
 import { detectModality, type Modality } from "../image/modality.js";
 import type { Volume } from "../image/volume.js";
 import { DEFAULT_BODY_HU } from "../masks/body.js";
 import type { VoxelBox } from "../masks/components.js";
+import { contentBox, cropVolume } from "../masks/crop.js";
 import { type ImageMasks, prepareLevelMasks } from "../masks/level-masks.js";
 import { createMetric, type Metric, type MetricKind } from "../metrics/metric.js";
 import { robustRange } from "../metrics/sampler.js";

@@ -23,8 +23,10 @@
 import { CoxaError } from "../common/errors.js";
 import type { ProgressFn } from "../common/progress.js";
 import { Rng } from "../common/random.js";
-import { type Mat4, multiply, translation } from "../geometry/mat4.js";
-import { Volume } from "../image/volume.js";
+import type { Mat4 } from "../geometry/mat4.js";
+import type { Volume } from "../image/volume.js";
+import { cropVolume } from "../masks/crop.js";
+import { maskBounds } from "../masks/morphology.js";
 import { addCtMetalArtifacts } from "../phantom/ct-artifacts.js";
 import { burnImplant, type ImplantModel, placeImplant, type Side } from "../phantom/implant.js";
 import { addMrMetalArtifacts } from "../phantom/mr-artifacts.js";
@@ -246,39 +248,13 @@ export function sideOfPoint(ct: Volume, pointMm: readonly number[]): Side {
  * @returns the cropped volume, or null when every code is zero
  */
 export function cropCodes(codes: Uint8Array, grid: Volume): Volume<Uint8Array> | null {
-  const [nx, ny, nz] = grid.dims;
-  const lo = [nx, ny, nz];
-  const hi = [-1, -1, -1];
-  let idx = 0;
-  for (let k = 0; k < nz; k++) {
-    for (let j = 0; j < ny; j++) {
-      for (let i = 0; i < nx; i++, idx++) {
-        if (codes[idx] === 0) continue;
-        if (i < lo[0]) lo[0] = i;
-        if (i > hi[0]) hi[0] = i;
-        if (j < lo[1]) lo[1] = j;
-        if (j > hi[1]) hi[1] = j;
-        if (k < lo[2]) lo[2] = k;
-        if (k > hi[2]) hi[2] = k;
-      }
-    }
-  }
-  if (hi[0] < 0) return null;
+  const box = maskBounds(codes, grid.dims);
+  if (!box) return null;
   for (let a = 0; a < 3; a++) {
-    lo[a] = Math.max(0, lo[a] - 1);
-    hi[a] = Math.min(grid.dims[a] - 1, hi[a] + 1);
+    box.min[a] = Math.max(0, box.min[a] - 1);
+    box.max[a] = Math.min(grid.dims[a], box.max[a] + 1);
   }
-  const dims: [number, number, number] = [hi[0] - lo[0] + 1, hi[1] - lo[1] + 1, hi[2] - lo[2] + 1];
-  const out = new Uint8Array(dims[0] * dims[1] * dims[2]);
-  let o = 0;
-  for (let k = lo[2]; k <= hi[2]; k++) {
-    for (let j = lo[1]; j <= hi[1]; j++) {
-      const row = lo[0] + nx * (j + ny * k);
-      for (let i = 0; i < dims[0]; i++) out[o++] = codes[row + i];
-    }
-  }
-  const affine = multiply(new Float64Array(16), grid.indexToWorld, translation(lo[0], lo[1], lo[2]));
-  return new Volume(dims, out, affine);
+  return cropVolume(grid.withData(codes), box) as Volume<Uint8Array>;
 }
 
 /** Options of makeSeverityImages. */

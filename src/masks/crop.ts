@@ -9,14 +9,10 @@
  */
 import { sharedArray } from "../common/shared-arrays.js";
 import { multiply, translation } from "../geometry/mat4.js";
-import { allocate, type VoxelArray } from "./datatypes.js";
-import { Volume } from "./volume.js";
-
-/** A box of voxel indices, min inclusive, max exclusive, per axis i, j, k. */
-export interface IndexBox {
-  min: [number, number, number];
-  max: [number, number, number];
-}
+import { allocate } from "../image/datatypes.js";
+import { Volume } from "../image/volume.js";
+import type { VoxelBox } from "./components.js";
+import { thresholdBounds } from "./morphology.js";
 
 /**
  * Box of the voxels above `threshold`, found on every `step`-th voxel along each axis and then
@@ -32,41 +28,28 @@ export function contentBox(
   threshold: number,
   marginMm: number,
   step = 2,
-): IndexBox | undefined {
-  const [nx, ny, nz] = volume.dims;
-  const d: VoxelArray = volume.data;
-  const min: [number, number, number] = [nx, ny, nz];
-  const max: [number, number, number] = [-1, -1, -1];
-  for (let k = 0; k < nz; k += step) {
-    for (let j = 0; j < ny; j += step) {
-      const row = nx * (j + ny * k);
-      let first = -1;
-      let last = -1;
-      for (let i = 0; i < nx; i += step) {
-        if (d[row + i] > threshold) {
-          if (first < 0) first = i;
-          last = i;
-        }
-      }
-      if (first < 0) continue;
-      if (first < min[0]) min[0] = first;
-      if (last > max[0]) max[0] = last;
-      if (j < min[1]) min[1] = j;
-      if (j > max[1]) max[1] = j;
-      if (k < min[2]) min[2] = k;
-      if (k > max[2]) max[2] = k;
-    }
-  }
-  if (max[0] < 0) return undefined;
+): VoxelBox | undefined {
+  // Strictly above: the next representable value up is the ">=" threshold.
+  const found = thresholdBounds(volume.data, volume.dims, nextUp(threshold), step);
+  if (!found) return undefined;
   const sp = volume.spacingMm;
   const dims = volume.dims;
-  const box: IndexBox = { min: [0, 0, 0], max: [0, 0, 0] };
+  const box: VoxelBox = { min: [0, 0, 0], max: [0, 0, 0] };
   for (let a = 0; a < 3; a++) {
     const m = Math.ceil(marginMm / sp[a]) + step;
-    box.min[a] = Math.max(0, min[a] - m);
-    box.max[a] = Math.min(dims[a], max[a] + 1 + m);
+    box.min[a] = Math.max(0, found.min[a] - m);
+    box.max[a] = Math.min(dims[a], found.max[a] + m);
   }
   return box;
+}
+
+/** The smallest float64 above x (finite x). */
+function nextUp(x: number): number {
+  if (x === 0) return Number.MIN_VALUE;
+  const b = new Float64Array([x]);
+  const u = new BigInt64Array(b.buffer);
+  u[0] += x > 0 ? 1n : -1n;
+  return b[0];
 }
 
 /**
@@ -75,7 +58,7 @@ export function contentBox(
  * @param box - voxel box inside the grid
  * @param shared - put the data on a SharedArrayBuffer (for worker threads)
  */
-export function cropVolume(volume: Volume, box: IndexBox, shared = false): Volume {
+export function cropVolume(volume: Volume, box: VoxelBox, shared = false): Volume {
   const [nx, ny] = volume.dims;
   const cx = box.max[0] - box.min[0];
   const cy = box.max[1] - box.min[1];

@@ -6,8 +6,8 @@ import { describe, expect, it } from "vitest";
 import { isShared } from "../../src/common/shared-arrays.js";
 import { compose } from "../../src/geometry/mat4.js";
 import { rigidMatrix } from "../../src/geometry/rotation.js";
-import { contentBox, cropVolume } from "../../src/image/crop.js";
 import { Volume } from "../../src/image/volume.js";
+import { contentBox, cropVolume } from "../../src/masks/crop.js";
 
 function grid(): Volume {
   const dims: [number, number, number] = [40, 30, 20];
