@@ -158,16 +158,7 @@ export function robustRange(
   if (picked.length < 1000) picked = pickValues(data, mask, 1);
   if (picked.length === 0) throw new CoxaError("NO_OVERLAP", "no finite voxel inside the mask");
   const values = picked;
-  // Order statistics by selection (linear time), not a full sort.
-  const at = (p: number) => {
-    const pos = (p / 100) * (values.length - 1);
-    const lo = Math.floor(pos);
-    const a = selectKth(values, lo);
-    if (lo + 1 >= values.length || pos === lo) return a;
-    let b = Number.POSITIVE_INFINITY;
-    for (let i = lo + 1; i < values.length; i++) if (values[i] < b) b = values[i];
-    return a + (pos - lo) * (b - a);
-  };
+  const at = (p: number) => percentileBySelection(values, p);
   let lo = at(percents[0]);
   let hi = at(percents[1]);
   if (!(hi > lo)) {
@@ -175,6 +166,21 @@ export function robustRange(
     hi += 0.5;
   }
   return [lo, hi];
+}
+
+/**
+ * The p-th percentile (0..100, Hyndman & Fan definition 7: linear between order statistics) of
+ * `values`, by selection in linear time instead of a sort; reorders `values`.
+ */
+export function percentileBySelection(values: Float64Array, p: number): number {
+  const pos = ((values.length - 1) * p) / 100;
+  const lo = Math.floor(pos);
+  const a = selectKth(values, lo);
+  if (lo + 1 >= values.length || pos === lo) return a;
+  // After the selection everything beyond lo is >= a: the next order statistic is their minimum.
+  let b = Number.POSITIVE_INFINITY;
+  for (let i = lo + 1; i < values.length; i++) if (values[i] < b) b = values[i];
+  return a + (pos - lo) * (b - a);
 }
 
 /**

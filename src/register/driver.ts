@@ -50,6 +50,8 @@ import {
   maskMoments,
   maskRadiusMm,
   maxDisplacementMm,
+  positionSums,
+  radiusFromSums,
 } from "./regions.js";
 import { scanTranslations } from "./search.js";
 
@@ -483,7 +485,7 @@ function registerWith(
     samples: number,
     seed: number,
     leverScaled = false,
-    givenRoi?: { roi: Uint8Array; count: number },
+    givenRoi?: { roi: Uint8Array; count: number; radiusMm?: number },
   ) => {
     const fV = fPyr.levels[level].volume;
     const mV = mPyr.levels[level].volume;
@@ -493,15 +495,18 @@ function registerWith(
       sampled === "fixed" ? [fV, mV, fInc, mInc, current] : [mV, fV, mInc, fInc, inverse(current)];
     let roi = givenRoi?.roi;
     let roiCount = givenRoi?.count ?? 0;
+    let roiRadiusMm = givenRoi?.radiusMm;
     if (!roi) {
       roi = new Uint8Array(sInc.length);
-      roiCount = maskInsideOther(roi, sInc, sV, oV, toOther, o.roiMarginMm);
+      const sums = leverScaled ? positionSums() : undefined;
+      roiCount = maskInsideOther(roi, sInc, sV, oV, toOther, o.roiMarginMm, sums);
       if (roiCount === 0)
         throw new CoxaError("NO_OVERLAP", "the images do not overlap at the start transform");
+      if (sums) roiRadiusMm = radiusFromSums(sums);
     }
     let count = samples;
     if (leverScaled) {
-      const ratio = radiusMm / Math.max(1, maskRadiusMm(roi, sV));
+      const ratio = radiusMm / Math.max(1, roiRadiusMm ?? maskRadiusMm(roi, sV));
       count = Math.round(Math.min(o.maxSamples, samples * Math.max(1, ratio * ratio)));
     }
     return createMetric(o.metric, {
@@ -524,15 +529,18 @@ function registerWith(
   const chooseSampled = (
     level: number,
     current: Mat4,
-  ): { sampled: "fixed" | "moving"; roi: { roi: Uint8Array; count: number } } => {
+    withRadius: boolean,
+  ): { sampled: "fixed" | "moving"; roi: { roi: Uint8Array; count: number; radiusMm?: number } } => {
     const fV = fPyr.levels[level].volume;
     const mV = mPyr.levels[level].volume;
     const fInc = fMasks.levels[level].include;
     const mInc = mMasks.levels[level].include;
     const roiF = new Uint8Array(fInc.length);
     const roiM = new Uint8Array(mInc.length);
-    const nf = maskInsideOther(roiF, fInc, fV, mV, current, o.roiMarginMm);
-    const nm = maskInsideOther(roiM, mInc, mV, fV, inverse(current), o.roiMarginMm);
+    const sumsF = withRadius ? positionSums() : undefined;
+    const sumsM = withRadius ? positionSums() : undefined;
+    const nf = maskInsideOther(roiF, fInc, fV, mV, current, o.roiMarginMm, sumsF);
+    const nm = maskInsideOther(roiM, mInc, mV, fV, inverse(current), o.roiMarginMm, sumsM);
     if (nf === 0 || nm === 0)
       throw new CoxaError("NO_OVERLAP", "the images do not overlap at the current transform");
     let sampled: "fixed" | "moving";
@@ -540,8 +548,8 @@ function registerWith(
     else if (o.sampleFrom === "coarser") sampled = voxelVolume(mV) > voxelVolume(fV) ? "moving" : "fixed";
     else sampled = nm * voxelVolume(mV) < 0.7 * nf * voxelVolume(fV) ? "moving" : "fixed";
     return sampled === "fixed"
-      ? { sampled, roi: { roi: roiF, count: nf } }
-      : { sampled, roi: { roi: roiM, count: nm } };
+      ? { sampled, roi: { roi: roiF, count: nf, radiusMm: sumsF && radiusFromSums(sumsF) } }
+      : { sampled, roi: { roi: roiM, count: nm, radiusMm: sumsM && radiusFromSums(sumsM) } };
   };
 
   const current = identity();
@@ -658,7 +666,7 @@ function registerWith(
       params = convertParameters(model, params, levelModel, centerMm);
       model = levelModel;
     }
-    const { sampled, roi } = chooseSampled(l, current);
+    const { sampled, roi } = chooseSampled(l, current, l === finest);
     const samples = o.samples[Math.min(l, o.samples.length - 1)];
     const metric = buildMetric(l, sampled, current, samples, o.seed + 17 * (l + 1), l === finest, roi);
     const setupSeconds = seconds(tl);

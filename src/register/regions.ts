@@ -128,51 +128,112 @@ export function maskMoments(mask: Uint8Array, volume: Volume): MaskMoments {
 }
 
 /**
+ * Running sums of set voxel centres (count, sum x, sum y, sum z, sum |x|^2, world mm), which
+ * maskInsideOther can gather while it writes its output; radiusFromSums turns them into the
+ * RMS distance from the centroid.
+ */
+export type PositionSums = Float64Array;
+
+/** A zeroed PositionSums. */
+export function positionSums(): PositionSums {
+  return new Float64Array(5);
+}
+
+/** RMS distance (mm) of the summed voxels from their centroid: sqrt(E|x|^2 - |E x|^2). */
+export function radiusFromSums(s: PositionSums): number {
+  const n = s[0];
+  if (n === 0) return 0;
+  const cx = s[1] / n;
+  const cy = s[2] / n;
+  const cz = s[3] / n;
+  return Math.sqrt(Math.max(0, s[4] / n - (cx * cx + cy * cy + cz * cz)));
+}
+
+/**
  * RMS distance (mm) of a mask's voxel centres from their centroid, in one pass
  * (E|x|^2 - |E x|^2): what the sample-count lever rule needs, without the full moments.
  */
 export function maskRadiusMm(mask: Uint8Array, volume: Volume): number {
   const [nx, ny, nz] = volume.dims;
   const m = volume.indexToWorld;
+  const s = positionSums();
+  for (let k = 0, q = 0; k < nz; k++) {
+    for (let j = 0; j < ny; j++, q += nx) addRowSums(s, mask, q, 0, nx - 1, m, j, k);
+  }
+  return radiusFromSums(s);
+}
+
+/** Add the set voxels of row (j, k), i in [i0, i1], starting at flat index `rowStart`, to `s`. */
+function addRowSums(
+  s: PositionSums,
+  mask: Uint8Array,
+  rowStart: number,
+  i0: number,
+  i1: number,
+  m: Mat4,
+  j: number,
+  k: number,
+): void {
+  const bx = m[1] * j + m[2] * k + m[3];
+  const by = m[5] * j + m[6] * k + m[7];
+  const bz = m[9] * j + m[10] * k + m[11];
   let n = 0;
   let sx = 0;
   let sy = 0;
   let sz = 0;
   let s2 = 0;
-  for (let k = 0, q = 0; k < nz; k++) {
-    for (let j = 0; j < ny; j++) {
-      const bx = m[1] * j + m[2] * k;
-      const by = m[5] * j + m[6] * k;
-      const bz = m[9] * j + m[10] * k;
-      for (let i = 0; i < nx; i++, q++) {
-        if (mask[q] === 0) continue;
-        const x = m[0] * i + bx;
-        const y = m[4] * i + by;
-        const z = m[8] * i + bz;
-        n++;
-        sx += x;
-        sy += y;
-        sz += z;
-        s2 += x * x + y * y + z * z;
-      }
-    }
+  for (let i = i0; i <= i1; i++) {
+    if (mask[rowStart + i] === 0) continue;
+    const x = m[0] * i + bx;
+    const y = m[4] * i + by;
+    const z = m[8] * i + bz;
+    n++;
+    sx += x;
+    sy += y;
+    sz += z;
+    s2 += x * x + y * y + z * z;
   }
-  if (n === 0) return 0;
-  const cx = sx / n;
-  const cy = sy / n;
-  const cz = sz / n;
-  return Math.sqrt(Math.max(0, s2 / n - (cx * cx + cy * cy + cz * cz)));
+  s[0] += n;
+  s[1] += sx;
+  s[2] += sy;
+  s[3] += sz;
+  s[4] += s2;
+}
+
+/**
+ * Narrow [range[0], range[1]] (values of i) to where p0 + i * d lies in [lo, hi]; an empty
+ * result has range[0] > range[1].
+ */
+function clipRow(range: Float64Array, p0: number, d: number, lo: number, hi: number): void {
+  if (d === 0) {
+    if (!(p0 >= lo && p0 <= hi)) {
+      range[0] = 1;
+      range[1] = 0;
+    }
+    return;
+  }
+  let t0 = (lo - p0) / d;
+  let t1 = (hi - p0) / d;
+  if (t0 > t1) {
+    const t = t0;
+    t0 = t1;
+    t1 = t;
+  }
+  if (t0 > range[0]) range[0] = t0;
+  if (t1 < range[1]) range[1] = t1;
 }
 
 /**
  * The voxels of `mask` whose centres map (through `gridToOther`) inside `other`'s voxel box
- * grown by `marginMm` on every side.
+ * grown by `marginMm` on every side. Each row's inside part is found in closed form (the line
+ * clipped against the box), so the pass costs a copy of the mask.
  * @param out - output mask (may be `mask`)
  * @param mask - 0/1 mask on `grid`
  * @param grid - the mask's image
  * @param other - the image whose box is tested
  * @param gridToOther - grid world mm -> other world mm
  * @param marginMm - margin added around the other image's box (mm, >= 0)
+ * @param sums - if given, the world positions of the voxels set in `out` are added to it
  * @returns number of voxels set in `out`
  */
 export function maskInsideOther(
@@ -182,6 +243,7 @@ export function maskInsideOther(
   other: Volume,
   gridToOther: Mat4,
   marginMm: number,
+  sums?: PositionSums,
 ): number {
   const a = new Float64Array(16);
   multiply(a, gridToOther, grid.indexToWorld);
@@ -192,27 +254,32 @@ export function maskInsideOther(
   const mx = marginMm / sp[0] + 0.5;
   const my = marginMm / sp[1] + 0.5;
   const mz = marginMm / sp[2] + 0.5;
-  const loX = -mx;
-  const hiX = ox - 1 + mx;
-  const loY = -my;
-  const hiY = oy - 1 + my;
-  const loZ = -mz;
-  const hiZ = oz - 1 + mz;
+  const range = new Float64Array(2);
+  const m = grid.indexToWorld;
   let count = 0;
   for (let k = 0, q = 0; k < nz; k++) {
-    for (let j = 0; j < ny; j++) {
-      let x = a[1] * j + a[2] * k + a[3];
-      let y = a[5] * j + a[6] * k + a[7];
-      let z = a[9] * j + a[10] * k + a[11];
-      for (let i = 0; i < nx; i++, q++) {
-        const v =
-          mask[q] !== 0 && x >= loX && x <= hiX && y >= loY && y <= hiY && z >= loZ && z <= hiZ ? 1 : 0;
-        out[q] = v;
-        count += v;
-        x += a[0];
-        y += a[4];
-        z += a[8];
+    for (let j = 0; j < ny; j++, q += nx) {
+      range[0] = 0;
+      range[1] = nx - 1;
+      clipRow(range, a[1] * j + a[2] * k + a[3], a[0], -mx, ox - 1 + mx);
+      clipRow(range, a[5] * j + a[6] * k + a[7], a[4], -my, oy - 1 + my);
+      clipRow(range, a[9] * j + a[10] * k + a[11], a[8], -mz, oz - 1 + mz);
+      const i0 = Math.ceil(range[0]);
+      const i1 = Math.floor(range[1]);
+      if (i0 > i1) {
+        for (let i = 0; i < nx; i++) out[q + i] = 0;
+        continue;
       }
+      for (let i = 0; i < i0; i++) out[q + i] = 0;
+      for (let i = i1 + 1; i < nx; i++) out[q + i] = 0;
+      let c = 0;
+      for (let i = i0; i <= i1; i++) {
+        const v = mask[q + i] !== 0 ? 1 : 0;
+        out[q + i] = v;
+        c += v;
+      }
+      count += c;
+      if (sums !== undefined && c > 0) addRowSums(sums, out, q, i0, i1, m, j, k);
     }
   }
   return count;

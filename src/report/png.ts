@@ -67,6 +67,9 @@ export function encodePng(image: RasterImage, deflateLevel = 9): Buffer {
     inputHasAlpha: channels === 4,
     bitDepth: 8,
     deflateLevel,
+    // One filter for every row (Paeth, PNG specification 9.4) instead of trying all five per
+    // row: the trial costs ~4x the encoding time and wins a few percent of size on our panels.
+    filterType: 4,
   });
 }
 

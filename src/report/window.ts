@@ -13,6 +13,7 @@
  */
 import { CoxaError } from "../common/errors.js";
 import type { VoxelArray } from "../image/datatypes.js";
+import { percentileBySelection } from "../metrics/sampler.js";
 
 /** An intensity range in the image's own unit (HU for CT). */
 export interface IntensityWindow {
@@ -64,10 +65,11 @@ export function ctWindow(name: CtWindowName = "bone-soft"): IntensityWindow {
 
 /**
  * Percentiles of the finite values of `data` (Hyndman & Fan definition 7). Large arrays are
- * read on a regular stride so that at most about `maxSamples` values are sorted.
+ * read on a regular stride so that at most about `maxSamples` values are used (order
+ * statistics by selection, no sort).
  * @param data - voxel values
  * @param percents - wanted percentiles, each in 0..100
- * @param maxSamples - cap on the values sorted (default 400 000)
+ * @param maxSamples - cap on the values used (default 400 000)
  * @returns one value per requested percentile; NaN when no value is finite
  * @throws CoxaError BAD_ARGUMENT for a percentile outside 0..100
  */
@@ -87,13 +89,8 @@ export function percentiles(
     if (v === v && v !== Infinity && v !== -Infinity) sample[n++] = v;
   }
   if (n === 0) return percents.map(() => Number.NaN);
-  const sorted = sample.subarray(0, n).sort();
-  return percents.map((p) => {
-    const h = ((n - 1) * p) / 100;
-    const lo = Math.floor(h);
-    const hi = Math.min(n - 1, lo + 1);
-    return sorted[lo] + (h - lo) * (sorted[hi] - sorted[lo]);
-  });
+  const values = sample.subarray(0, n);
+  return percents.map((p) => percentileBySelection(values, p));
 }
 
 /**

@@ -10,7 +10,7 @@
  * lies inside the source box [-0.5, n - 0.5]^3 is found in closed form (clipping the line
  * against the box); the rest of the row gets the fill value without being sampled.
  */
-import type { VoxelArray } from "../image/datatypes.js";
+import { DATATYPES, datatypeOf, type VoxelArray } from "../image/datatypes.js";
 import { cubicAt, type Interp } from "./kernels.js";
 
 /** Everything one slab needs; plain data so that it can cross to a worker thread. */
@@ -60,6 +60,10 @@ export function resampleSlab(job: SlabJob): number {
   const integer = job.outInteger;
   const lo = job.outMin;
   const hi = job.outMax;
+  // Integer source whose whole type range fits the output: nearest and trilinear values (convex
+  // combinations of source voxels) need rounding at most, never clamping or a NaN check.
+  const srcInfo = DATATYPES[datatypeOf(src)];
+  const inRange = integer && interp !== "cubic" && srcInfo.integer && srcInfo.min >= lo && srcInfo.max <= hi;
   const xmax = nx - 1;
   const ymax = ny - 1;
   const zmax = nz - 1;
@@ -100,7 +104,7 @@ export function resampleSlab(job: SlabJob): number {
           let ix = Math.floor(x0 + i * m00 + 0.5);
           ix = ix < 0 ? 0 : ix > xmax ? xmax : ix;
           const v = src[srcRow + ix];
-          out[rowStart + i] = integer ? clampRound(v, lo, hi) : v;
+          out[rowStart + i] = integer && !inRange ? clampRound(v, lo, hi) : v;
         }
       } else if (interp === "nearest") {
         for (let i = iStart; i <= iEnd; i++) {
@@ -111,7 +115,7 @@ export function resampleSlab(job: SlabJob): number {
           iy = iy < 0 ? 0 : iy > ymax ? ymax : iy;
           iz = iz < 0 ? 0 : iz > zmax ? zmax : iz;
           const v = src[ix + nx * iy + nxy * iz];
-          out[rowStart + i] = integer ? clampRound(v, lo, hi) : v;
+          out[rowStart + i] = integer && !inRange ? clampRound(v, lo, hi) : v;
         }
       } else if (interp === "linear") {
         // Sub-range where all 8 neighbours exist (no clamping): the fast loop.
@@ -151,7 +155,7 @@ export function resampleSlab(job: SlabJob): number {
               const c11 = d + fx * (src[p + nx + 1] - d);
               const e = c00 + fy * (c10 - c00);
               const v = e + fz * (c01 + fy * (c11 - c01) - e);
-              out[rowStart + i] = integer ? clampRound(v, lo, hi) : v;
+              out[rowStart + i] = inRange ? Math.round(v) : integer ? clampRound(v, lo, hi) : v;
             }
             if (i > iEnd) break;
           }

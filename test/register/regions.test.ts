@@ -4,7 +4,15 @@ import { compose, identity, inverse, scaling, translation } from "../../src/geom
 import { rigidMatrix } from "../../src/geometry/rotation.js";
 import { Volume } from "../../src/image/volume.js";
 import { initialTransform } from "../../src/register/initialise.js";
-import { boxCorners, maskInsideOther, maskMoments, maxDisplacementMm } from "../../src/register/regions.js";
+import {
+  boxCorners,
+  maskInsideOther,
+  maskMoments,
+  maskRadiusMm,
+  maxDisplacementMm,
+  positionSums,
+  radiusFromSums,
+} from "../../src/register/regions.js";
 import { expectAllClose } from "../helpers/close.js";
 
 /** An asymmetric blob (an L-shaped bar plus a knob) on a grid. */
@@ -85,6 +93,43 @@ describe("register/regions", () => {
     const n2 = maskInsideOther(out, all, vol, other, identity(), 2);
     // margin 2 mm: [-2.5, 11.5] -> -2,0,...,10 -> 7 per axis
     expect(n2).toBe(343);
+  });
+
+  it("maskInsideOther's position sums give the RMS radius of the kept box (closed form)", () => {
+    const other = new Volume([10, 10, 10], new Float32Array(1000), scaling(1, 1, 1));
+    const all = new Uint8Array(vol.count).fill(1);
+    const out = new Uint8Array(vol.count);
+    const sums = positionSums();
+    // Rotated about z by 30 degrees and shifted: rows cross the box obliquely.
+    const turn = rigidMatrix([0, 0, 0], [3, -2, 1], [0, 0, Math.PI / 6]);
+    const n = maskInsideOther(out, all, vol, other, turn, 1, sums);
+    expect(n).toBeGreaterThan(0);
+    expect(sums[0]).toBe(n);
+    // Same radius as the separate pass over the output mask.
+    expect(radiusFromSums(sums)).toBeCloseTo(maskRadiusMm(out, vol), 9);
+    // Brute force: each voxel centre mapped and tested against the grown box.
+    const p = [0, 0, 0];
+    let brute = 0;
+    let wrong = 0;
+    const [nx, ny, nz] = vol.dims;
+    for (let k = 0, q = 0; k < nz; k++)
+      for (let j = 0; j < ny; j++)
+        for (let i = 0; i < nx; i++, q++) {
+          vol.indexToWorldPoint(p, i, j, k);
+          const x = turn[0] * p[0] + turn[1] * p[1] + turn[2] * p[2] + turn[3];
+          const y = turn[4] * p[0] + turn[5] * p[1] + turn[6] * p[2] + turn[7];
+          const z = turn[8] * p[0] + turn[9] * p[1] + turn[10] * p[2] + turn[11];
+          const inside = [x, y, z].every((c) => c >= -1.5 && c <= 10.5);
+          if (out[q] !== (inside ? 1 : 0)) wrong++;
+          brute += inside ? 1 : 0;
+        }
+    expect(wrong).toBe(0);
+    expect(n).toBe(brute);
+    // A full n x n x n grid of spacing h has RMS radius h * sqrt(3 (n^2 - 1) / 12) (closed form).
+    const cube = new Volume([5, 5, 5], new Float32Array(125), scaling(2, 2, 2));
+    const s2 = positionSums();
+    maskInsideOther(new Uint8Array(125), new Uint8Array(125).fill(1), cube, cube, identity(), 0, s2);
+    expect(radiusFromSums(s2)).toBeCloseTo(2 * Math.sqrt((3 * 24) / 12), 12);
   });
 
   it("maxDisplacementMm over box corners equals the maximum over the whole box (convexity)", () => {
