@@ -157,8 +157,23 @@ const packedCache = new WeakMap<Uint8Array, Uint8Array>();
 function packedMask(mask: Uint8Array): Uint8Array {
   let bits = packedCache.get(mask);
   if (!bits) {
-    bits = new Uint8Array((mask.length + 7) >> 3);
-    for (let q = 0; q < mask.length; q++) if (mask[q] !== 0) bits[q >> 3] |= 1 << (q & 7);
+    const n = mask.length;
+    bits = new Uint8Array((n + 7) >> 3);
+    // Eight mask bytes per output byte without branches (masks are mostly long runs of 0s or
+    // 1s, but their edges make a per-voxel branch mispredict).
+    const whole = n >> 3;
+    for (let b = 0, q = 0; b < whole; b++, q += 8) {
+      bits[b] =
+        (mask[q] !== 0 ? 1 : 0) |
+        (mask[q + 1] !== 0 ? 2 : 0) |
+        (mask[q + 2] !== 0 ? 4 : 0) |
+        (mask[q + 3] !== 0 ? 8 : 0) |
+        (mask[q + 4] !== 0 ? 16 : 0) |
+        (mask[q + 5] !== 0 ? 32 : 0) |
+        (mask[q + 6] !== 0 ? 64 : 0) |
+        (mask[q + 7] !== 0 ? 128 : 0);
+    }
+    for (let q = whole << 3; q < n; q++) if (mask[q] !== 0) bits[q >> 3] |= 1 << (q & 7);
     packedCache.set(mask, bits);
   }
   return bits;

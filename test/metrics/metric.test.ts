@@ -196,6 +196,22 @@ describe("overlap and masks", () => {
     expect(m.counted).toBe(4000);
   });
 
+  it("moving mask on a grid whose size is not a multiple of 8: every masked-out voxel is dropped", () => {
+    // 7 x 7 x 7 = 343 voxels: the bitset's last byte holds 7 voxels. Identity transform, every
+    // voxel sampled: the counted samples are exactly the voxels the mask keeps (closed form).
+    const g = new Volume([7, 7, 7], Float32Array.from({ length: 343 }, (_, q) => (q * 37) % 11), identity());
+    const mask = new Uint8Array(343);
+    let kept = 0;
+    for (let q = 0; q < 343; q++) {
+      mask[q] = q % 3 === 0 || q >= 336 ? 1 : 0;
+      kept += mask[q];
+    }
+    const m = createMetric("mi", { fixed: g, moving: g, movingMask: mask, samples: 1e9 });
+    m.evaluate(identity());
+    expect(kept).toBe(119);
+    expect(m.counted).toBe(kept);
+  });
+
   it("fixed mask: samples are drawn only from it", () => {
     const mask = new Uint8Array(f.count);
     mask[5] = mask[77] = mask[4000] = 1;
