@@ -199,7 +199,11 @@ describe("overlap and masks", () => {
   it("moving mask on a grid whose size is not a multiple of 8: every masked-out voxel is dropped", () => {
     // 7 x 7 x 7 = 343 voxels: the bitset's last byte holds 7 voxels. Identity transform, every
     // voxel sampled: the counted samples are exactly the voxels the mask keeps (closed form).
-    const g = new Volume([7, 7, 7], Float32Array.from({ length: 343 }, (_, q) => (q * 37) % 11), identity());
+    const g = new Volume(
+      [7, 7, 7],
+      Float32Array.from({ length: 343 }, (_, q) => (q * 37) % 11),
+      identity(),
+    );
     const mask = new Uint8Array(343);
     let kept = 0;
     for (let q = 0; q < 343; q++) {
