@@ -6,6 +6,7 @@
  * centres in world mm (RAS+); `gridToOther` maps this grid's WORLD to the other image's WORLD.
  */
 
+import { clipLine } from "../geometry/clip-line.js";
 import type { Mat4 } from "../geometry/mat4.js";
 import { multiply } from "../geometry/mat4.js";
 import type { Volume } from "../image/volume.js";
@@ -201,29 +202,6 @@ function addRowSums(
 }
 
 /**
- * Narrow [range[0], range[1]] (values of i) to where p0 + i * d lies in [lo, hi]; an empty
- * result has range[0] > range[1].
- */
-function clipRow(range: Float64Array, p0: number, d: number, lo: number, hi: number): void {
-  if (d === 0) {
-    if (!(p0 >= lo && p0 <= hi)) {
-      range[0] = 1;
-      range[1] = 0;
-    }
-    return;
-  }
-  let t0 = (lo - p0) / d;
-  let t1 = (hi - p0) / d;
-  if (t0 > t1) {
-    const t = t0;
-    t0 = t1;
-    t1 = t;
-  }
-  if (t0 > range[0]) range[0] = t0;
-  if (t1 < range[1]) range[1] = t1;
-}
-
-/**
  * The voxels of `mask` whose centres map (through `gridToOther`) inside `other`'s voxel box
  * grown by `marginMm` on every side. Each row's inside part is found in closed form (the line
  * clipped against the box), so the pass costs a copy of the mask.
@@ -261,9 +239,9 @@ export function maskInsideOther(
     for (let j = 0; j < ny; j++, q += nx) {
       range[0] = 0;
       range[1] = nx - 1;
-      clipRow(range, a[1] * j + a[2] * k + a[3], a[0], -mx, ox - 1 + mx);
-      clipRow(range, a[5] * j + a[6] * k + a[7], a[4], -my, oy - 1 + my);
-      clipRow(range, a[9] * j + a[10] * k + a[11], a[8], -mz, oz - 1 + mz);
+      clipLine(range, a[1] * j + a[2] * k + a[3], a[0], -mx, ox - 1 + mx);
+      clipLine(range, a[5] * j + a[6] * k + a[7], a[4], -my, oy - 1 + my);
+      clipLine(range, a[9] * j + a[10] * k + a[11], a[8], -mz, oz - 1 + mz);
       const i0 = Math.ceil(range[0]);
       const i1 = Math.floor(range[1]);
       if (i0 > i1) {

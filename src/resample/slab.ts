@@ -10,6 +10,7 @@
  * lies inside the source box [-0.5, n - 0.5]^3 is found in closed form (clipping the line
  * against the box); the rest of the row gets the fill value without being sampled.
  */
+import { clipLine } from "../geometry/clip-line.js";
 import { DATATYPES, datatypeOf, type VoxelArray } from "../image/datatypes.js";
 import { cubicAt, type Interp } from "./kernels.js";
 
@@ -204,31 +205,9 @@ export function resampleSlab(job: SlabJob): number {
  * [-0.5, n - 0.5]. An empty result has range[0] > range[1].
  */
 function clipAxis(range: Float64Array, p0: number, d: number, n: number): void {
-  const lo = -0.5;
-  const hi = n - 0.5;
-  if (Math.abs(d) < 1e-12) {
-    if (!(p0 >= lo && p0 <= hi)) {
-      range[0] = 1;
-      range[1] = 0;
-    }
-    return;
-  }
-  let t0 = (lo - p0) / d;
-  let t1 = (hi - p0) / d;
-  if (t0 > t1) {
-    const t = t0;
-    t0 = t1;
-    t1 = t;
-  }
   // A hair of tolerance so that points exactly on the box face (identity grids) are kept;
   // the kernels clamp, so a point 1e-9 voxel outside cannot read out of bounds.
-  const eps = 1e-9 * Math.max(1, Math.abs(t0), Math.abs(t1));
-  if (t0 - eps > range[0]) range[0] = t0 - eps;
-  if (t1 + eps < range[1]) range[1] = t1 + eps;
-  if (!(range[0] <= range[1])) {
-    range[0] = 1;
-    range[1] = 0;
-  }
+  clipLine(range, p0, d, -0.5, n - 0.5, 1e-9);
 }
 
 /**
@@ -236,29 +215,7 @@ function clipAxis(range: Float64Array, p0: number, d: number, n: number): void {
  * that the +1 neighbour along this axis exists. Empty when n == 1.
  */
 function clipInterior(range: Float64Array, p0: number, d: number, n: number): void {
-  const lo = 1e-7;
-  const hi = n - 1 - 1e-7;
-  if (!(hi > lo)) {
-    range[0] = 1;
-    range[1] = 0;
-    return;
-  }
-  if (Math.abs(d) < 1e-12) {
-    if (!(p0 >= lo && p0 <= hi)) {
-      range[0] = 1;
-      range[1] = 0;
-    }
-    return;
-  }
-  let t0 = (lo - p0) / d;
-  let t1 = (hi - p0) / d;
-  if (t0 > t1) {
-    const t = t0;
-    t0 = t1;
-    t1 = t;
-  }
-  if (t0 > range[0]) range[0] = t0;
-  if (t1 < range[1]) range[1] = t1;
+  clipLine(range, p0, d, 1e-7, n - 1 - 1e-7);
 }
 
 function clampRound(v: number, lo: number, hi: number): number {
