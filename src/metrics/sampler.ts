@@ -121,11 +121,7 @@ export function createSampleSet(fixed: Volume, options: SampleOptions = {}): Sam
 export function percentile(values: ArrayLike<number>, percent: number): number {
   const a = Float64Array.from(values).filter((v) => v === v);
   if (a.length === 0) return Number.NaN;
-  a.sort();
-  const pos = (Math.min(100, Math.max(0, percent)) / 100) * (a.length - 1);
-  const lo = Math.floor(pos);
-  const hi = Math.min(a.length - 1, lo + 1);
-  return a[lo] + (pos - lo) * (a[hi] - a[lo]);
+  return percentileBySelection(a, Math.min(100, Math.max(0, percent)));
 }
 
 /**
