@@ -48,7 +48,6 @@ import {
   maskBoundsWorld,
   maskInsideOther,
   maskMoments,
-  maskRadiusMm,
   maxDisplacementMm,
   positionSums,
   radiusFromSums,
@@ -485,7 +484,7 @@ function registerWith(
     samples: number,
     seed: number,
     leverScaled = false,
-    givenRoi?: { roi: Uint8Array; count: number; radiusMm?: number },
+    givenRoi?: { roi: Uint8Array; count: number; radiusMm: number },
   ) => {
     const fV = fPyr.levels[level].volume;
     const mV = mPyr.levels[level].volume;
@@ -495,18 +494,18 @@ function registerWith(
       sampled === "fixed" ? [fV, mV, fInc, mInc, current] : [mV, fV, mInc, fInc, inverse(current)];
     let roi = givenRoi?.roi;
     let roiCount = givenRoi?.count ?? 0;
-    let roiRadiusMm = givenRoi?.radiusMm;
+    let roiRadiusMm = givenRoi?.radiusMm ?? 0;
     if (!roi) {
       roi = new Uint8Array(sInc.length);
-      const sums = leverScaled ? positionSums() : undefined;
+      const sums = positionSums();
       roiCount = maskInsideOther(roi, sInc, sV, oV, toOther, o.roiMarginMm, sums);
       if (roiCount === 0)
         throw new CoxaError("NO_OVERLAP", "the images do not overlap at the start transform");
-      if (sums) roiRadiusMm = radiusFromSums(sums);
+      roiRadiusMm = radiusFromSums(sums);
     }
     let count = samples;
     if (leverScaled) {
-      const ratio = radiusMm / Math.max(1, roiRadiusMm ?? maskRadiusMm(roi, sV));
+      const ratio = radiusMm / Math.max(1, roiRadiusMm);
       count = Math.round(Math.min(o.maxSamples, samples * Math.max(1, ratio * ratio)));
     }
     return createMetric(o.metric, {
@@ -529,16 +528,15 @@ function registerWith(
   const chooseSampled = (
     level: number,
     current: Mat4,
-    withRadius: boolean,
-  ): { sampled: "fixed" | "moving"; roi: { roi: Uint8Array; count: number; radiusMm?: number } } => {
+  ): { sampled: "fixed" | "moving"; roi: { roi: Uint8Array; count: number; radiusMm: number } } => {
     const fV = fPyr.levels[level].volume;
     const mV = mPyr.levels[level].volume;
     const fInc = fMasks.levels[level].include;
     const mInc = mMasks.levels[level].include;
     const roiF = new Uint8Array(fInc.length);
     const roiM = new Uint8Array(mInc.length);
-    const sumsF = withRadius ? positionSums() : undefined;
-    const sumsM = withRadius ? positionSums() : undefined;
+    const sumsF = positionSums();
+    const sumsM = positionSums();
     const nf = maskInsideOther(roiF, fInc, fV, mV, current, o.roiMarginMm, sumsF);
     const nm = maskInsideOther(roiM, mInc, mV, fV, inverse(current), o.roiMarginMm, sumsM);
     if (nf === 0 || nm === 0)
@@ -548,8 +546,8 @@ function registerWith(
     else if (o.sampleFrom === "coarser") sampled = voxelVolume(mV) > voxelVolume(fV) ? "moving" : "fixed";
     else sampled = nm * voxelVolume(mV) < 0.7 * nf * voxelVolume(fV) ? "moving" : "fixed";
     return sampled === "fixed"
-      ? { sampled, roi: { roi: roiF, count: nf, radiusMm: sumsF && radiusFromSums(sumsF) } }
-      : { sampled, roi: { roi: roiM, count: nm, radiusMm: sumsM && radiusFromSums(sumsM) } };
+      ? { sampled, roi: { roi: roiF, count: nf, radiusMm: radiusFromSums(sumsF) } }
+      : { sampled, roi: { roi: roiM, count: nm, radiusMm: radiusFromSums(sumsM) } };
   };
 
   const current = identity();
@@ -666,7 +664,7 @@ function registerWith(
       params = convertParameters(model, params, levelModel, centerMm);
       model = levelModel;
     }
-    const { sampled, roi } = chooseSampled(l, current, l === finest);
+    const { sampled, roi } = chooseSampled(l, current);
     const samples = o.samples[Math.min(l, o.samples.length - 1)];
     const metric = buildMetric(l, sampled, current, samples, o.seed + 17 * (l + 1), l === finest, roi);
     const setupSeconds = seconds(tl);

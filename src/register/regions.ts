@@ -150,20 +150,6 @@ export function radiusFromSums(s: PositionSums): number {
   return Math.sqrt(Math.max(0, s[4] / n - (cx * cx + cy * cy + cz * cz)));
 }
 
-/**
- * RMS distance (mm) of a mask's voxel centres from their centroid, in one pass
- * (E|x|^2 - |E x|^2): what the sample-count lever rule needs, without the full moments.
- */
-export function maskRadiusMm(mask: Uint8Array, volume: Volume): number {
-  const [nx, ny, nz] = volume.dims;
-  const m = volume.indexToWorld;
-  const s = positionSums();
-  for (let k = 0, q = 0; k < nz; k++) {
-    for (let j = 0; j < ny; j++, q += nx) addRowSums(s, mask, q, 0, nx - 1, m, j, k);
-  }
-  return radiusFromSums(s);
-}
-
 /** Add the set voxels of row (j, k), i in [i0, i1], starting at flat index `rowStart`, to `s`. */
 function addRowSums(
   s: PositionSums,
