@@ -13,20 +13,41 @@ const gzipAsync = promisify(gzip) as (buf: Uint8Array, opts: { level: number }) 
 export const GZIP_CHUNK_BYTES = 8 * 1024 * 1024;
 
 /**
- * gzip `data` as one member per chunk, chunks compressed concurrently.
- * @param data - bytes to compress
+ * gzip `data` as one member per chunk, chunks compressed concurrently. `data` may be several
+ * pieces, compressed as if they were one buffer (same members, byte for byte): a chunk that lies
+ * within one piece is compressed from it in place, only a chunk that spans two is copied.
+ * @param data - bytes to compress, one buffer or several in order
  * @param level - zlib level 0-9
  * @returns the members in order (write them one after the other)
  */
 export async function gzipMembers(
-  data: Uint8Array,
+  data: Uint8Array | readonly Uint8Array[],
   level = 6,
   chunkBytes = GZIP_CHUNK_BYTES,
 ): Promise<Buffer[]> {
+  const pieces = data instanceof Uint8Array ? [data] : data;
+  const total = pieces.reduce((s, p) => s + p.length, 0);
   const parts: Promise<Buffer>[] = [];
-  for (let off = 0; off < data.length || off === 0; off += chunkBytes) {
-    parts.push(gzipAsync(data.subarray(off, Math.min(data.length, off + chunkBytes)), { level }));
-    if (data.length === 0) break;
+  for (let off = 0; off < total || off === 0; off += chunkBytes) {
+    parts.push(gzipAsync(bytesBetween(pieces, off, Math.min(total, off + chunkBytes)), { level }));
+    if (total === 0) break;
   }
   return Promise.all(parts);
+}
+
+/** Bytes [from, to) of the pieces taken as one buffer: a view when one piece holds them. */
+function bytesBetween(pieces: readonly Uint8Array[], from: number, to: number): Uint8Array {
+  let start = 0;
+  let k = 0;
+  while (k < pieces.length - 1 && start + pieces[k].length <= from) start += pieces[k++].length;
+  if (k >= pieces.length) return new Uint8Array(0);
+  if (to <= start + pieces[k].length) return pieces[k].subarray(from - start, to - start);
+  const out = new Uint8Array(to - from);
+  for (let at = 0; at < out.length; k++) {
+    const piece = pieces[k].subarray(Math.max(0, from + at - start), Math.min(pieces[k].length, to - start));
+    out.set(piece, at);
+    at += piece.length;
+    start += pieces[k].length;
+  }
+  return out;
 }

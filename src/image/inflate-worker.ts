@@ -6,15 +6,20 @@
 import { parentPort, workerData } from "node:worker_threads";
 import { gunzipSync } from "node:zlib";
 
-const { input, maxOutputLength } = workerData as { input: ArrayBuffer; maxOutputLength: number };
+const { input, maxOutputLength, chunkSize } = workerData as {
+  input: ArrayBuffer;
+  maxOutputLength: number;
+  chunkSize?: number;
+};
 try {
-  const out = gunzipSync(new Uint8Array(input), { maxOutputLength });
-  // A large output Buffer owns its ArrayBuffer; send it without copying.
-  const whole = out.byteOffset === 0 && out.byteLength === out.buffer.byteLength;
-  const buffer = whole
+  const out = gunzipSync(new Uint8Array(input), { maxOutputLength, ...(chunkSize ? { chunkSize } : {}) });
+  // A large output Buffer starts its own ArrayBuffer (the one chunk zlib filled, perhaps with
+  // unused room at the end): send that without copying, with the length used.
+  const own = out.byteOffset === 0 && out.buffer.byteLength >= 1 << 16;
+  const buffer = own
     ? (out.buffer as ArrayBuffer)
     : out.buffer.slice(out.byteOffset, out.byteOffset + out.byteLength);
-  parentPort!.postMessage({ ok: true, buffer }, [buffer as ArrayBuffer]);
+  parentPort!.postMessage({ ok: true, buffer, length: out.byteLength }, [buffer as ArrayBuffer]);
 } catch (err) {
   const e = err as NodeJS.ErrnoException;
   parentPort!.postMessage({ ok: false, name: e.name, code: e.code, message: e.message });

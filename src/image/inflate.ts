@@ -10,24 +10,35 @@ import { workerScript } from "../common/workers.js";
 /**
  * Inflate `input` (a whole gzip stream) on a new worker thread.
  * @param input - compressed bytes; its memory is handed to the worker (do not use it after)
- * @param maxOutputLength - refuse to inflate beyond this many bytes
+ * @param limits - maxOutputLength: refuse to inflate beyond this many bytes; chunkSize: zlib's
+ *   output chunk (one chunk as large as the expected output avoids joining chunks at the end)
  */
-export function inflateInWorker(input: Uint8Array, maxOutputLength: number): Promise<Uint8Array> {
+export function inflateInWorker(
+  input: Uint8Array,
+  limits: { maxOutputLength: number; chunkSize?: number },
+): Promise<Uint8Array> {
   const whole = input.byteOffset === 0 && input.byteLength === input.buffer.byteLength;
   const buffer = whole
     ? (input.buffer as ArrayBuffer)
     : (input.buffer.slice(input.byteOffset, input.byteOffset + input.byteLength) as ArrayBuffer);
   return new Promise((resolve, reject) => {
     const worker = new Worker(workerScript(import.meta.url, "inflate-worker"), {
-      workerData: { input: buffer, maxOutputLength },
+      workerData: { input: buffer, ...limits },
       transferList: [buffer],
     });
     let settled = false;
     worker.once(
       "message",
-      (m: { ok: boolean; buffer?: ArrayBuffer; name?: string; code?: string; message?: string }) => {
+      (m: {
+        ok: boolean;
+        buffer?: ArrayBuffer;
+        length?: number;
+        name?: string;
+        code?: string;
+        message?: string;
+      }) => {
         settled = true;
-        if (m.ok) resolve(new Uint8Array(m.buffer!));
+        if (m.ok) resolve(new Uint8Array(m.buffer!, 0, m.length));
         else {
           const err = m.name === "RangeError" ? new RangeError(m.message) : new Error(m.message);
           Object.assign(err, { code: m.code });

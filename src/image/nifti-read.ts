@@ -74,9 +74,22 @@ const HEADER_PROBE_BYTES = 65536;
 const GZIP_MARGIN_BYTES = 1 << 20;
 /** Compressed files from this size on are inflated on a worker thread of their own. */
 const WORKER_INFLATE_BYTES = 4 << 20;
+/** Largest single output chunk zlib is asked to fill (beyond it, more chunks are joined). */
+const MAX_INFLATE_CHUNK_BYTES = 1 << 30;
+
+/**
+ * zlib options for inflating a file whose header says it holds `needed` bytes: refuse much more,
+ * and inflate into one output chunk of that size, so the voxels land in their final buffer
+ * without a second copy (zlib's default 16 KB chunks are joined at the end, doubling the memory
+ * touched for a large volume).
+ */
+export function inflateLimits(needed: number): { maxOutputLength: number; chunkSize: number } {
+  const maxOutputLength = needed + GZIP_MARGIN_BYTES;
+  return { maxOutputLength, chunkSize: Math.max(64, Math.min(maxOutputLength, MAX_INFLATE_CHUNK_BYTES)) };
+}
 const gunzipAsync = promisify(gunzip) as (
   buf: Uint8Array,
-  opts: { maxOutputLength: number },
+  opts: { maxOutputLength: number; chunkSize: number },
 ) => Promise<Buffer>;
 
 /**
@@ -113,7 +126,7 @@ export function parseNifti(bytes: Uint8Array, name: string, options: ReadNiftiOp
   let whole = bytes;
   if (plan.gz) {
     try {
-      whole = gunzipSync(bytes, { maxOutputLength: plan.needed + GZIP_MARGIN_BYTES });
+      whole = gunzipSync(bytes, inflateLimits(plan.needed));
     } catch (err) {
       throw inflateError(err, plan.needed, name);
     }
@@ -146,11 +159,11 @@ export async function readNiftiAsync(path: string, options: ReadNiftiOptions = {
   let whole: Uint8Array = raw;
   if (plan.gz) {
     try {
-      const maxOutputLength = plan.needed + GZIP_MARGIN_BYTES;
+      const limits = inflateLimits(plan.needed);
       whole =
         raw.length >= WORKER_INFLATE_BYTES
-          ? await inflateInWorker(raw, maxOutputLength)
-          : await gunzipAsync(raw, { maxOutputLength });
+          ? await inflateInWorker(raw, limits)
+          : await gunzipAsync(raw, limits);
     } catch (err) {
       throw inflateError(err, plan.needed, path);
     }

@@ -40,6 +40,19 @@ const SHEAR_TOLERANCE = 1e-6;
  * @throws CoxaError BAD_AFFINE for a singular or non-finite affine, BAD_DIMS when frames differ in size
  */
 export function encodeNifti(volume: Volume, options: WriteNiftiOptions = {}): Uint8Array {
+  const parts = encodeNiftiParts(volume, options);
+  if (parts.length === 1) return parts[0];
+  const out = new Uint8Array(parts.reduce((s, p) => s + p.length, 0));
+  for (let i = 0, at = 0; i < parts.length; at += parts[i++].length) out.set(parts[i], at);
+  return out;
+}
+
+/**
+ * The bytes of encodeNifti in pieces to be written in order: the header with the voxels, or,
+ * when one volume is stored as its own datatype without scaling, the header and then a view of
+ * the volume's own voxel memory (no copy of a large volume just to write it).
+ */
+export function encodeNiftiParts(volume: Volume, options: WriteNiftiOptions = {}): Uint8Array[] {
   const datatype = options.datatype ?? "float32";
   const info = DATATYPES[datatype];
   const frames = [volume.data, ...(options.frames ?? [])];
@@ -52,7 +65,13 @@ export function encodeNifti(volume: Volume, options: WriteNiftiOptions = {}): Ui
     throw new CoxaError("BAD_AFFINE", "affine is singular or not finite");
   const slope = options.sclSlope ?? 1;
   const inter = options.sclInter ?? 0;
-  const buffer = new ArrayBuffer(352 + n * frames.length * info.bytes);
+  const asStored =
+    frames.length === 1 &&
+    slope === 1 &&
+    inter === 0 &&
+    volume.data.constructor === info.make(0).constructor &&
+    LITTLE_ENDIAN_HOST;
+  const buffer = new ArrayBuffer(352 + (asStored ? 0 : n * frames.length * info.bytes));
   const view = new DataView(buffer);
   const le = true;
   view.setInt32(0, 348, le);
@@ -107,6 +126,10 @@ export function encodeNifti(volume: Volume, options: WriteNiftiOptions = {}): Ui
   const magic = [0x6e, 0x2b, 0x31, 0]; // "n+1\0"
   for (let i = 0; i < 4; i++) view.setUint8(344 + i, magic[i]);
   // bytes 348..351: extension flag, all zero
+  if (asStored) {
+    const d = volume.data;
+    return [new Uint8Array(buffer), new Uint8Array(d.buffer, d.byteOffset, d.byteLength)];
+  }
   for (let f = 0; f < frames.length; f++) {
     const out = info.make(0).constructor as new (b: ArrayBuffer, o: number, l: number) => VoxelArray;
     storeFrame(
@@ -119,8 +142,11 @@ export function encodeNifti(volume: Volume, options: WriteNiftiOptions = {}): Ui
       inter,
     );
   }
-  return new Uint8Array(buffer);
+  return [new Uint8Array(buffer)];
 }
+
+/** NIfTI files here are little-endian; a typed array's own bytes are that only on such a host. */
+const LITTLE_ENDIAN_HOST = new Uint8Array(new Uint16Array([1]).buffer)[0] === 1;
 
 function storeFrame(
   out: VoxelArray,
@@ -156,8 +182,8 @@ function storeFrame(
  * @throws CoxaError as encodeNifti
  */
 export function writeNifti(path: string, volume: Volume, options: WriteNiftiOptions = {}): void {
-  const bytes = encodeNifti(volume, options);
-  writeFileAtomic(path, path.endsWith(".gz") ? gzipSync(bytes, { level: options.gzipLevel ?? 6 }) : bytes);
+  if (!path.endsWith(".gz")) writeFileAtomic(path, encodeNiftiParts(volume, options));
+  else writeFileAtomic(path, gzipSync(encodeNifti(volume, options), { level: options.gzipLevel ?? 6 }));
 }
 
 /**
@@ -169,8 +195,8 @@ export async function writeNiftiAsync(
   volume: Volume,
   options: WriteNiftiOptions = {},
 ): Promise<void> {
-  const bytes = encodeNifti(volume, options);
-  writeFileAtomic(path, path.endsWith(".gz") ? await gzipMembers(bytes, options.gzipLevel ?? 6) : bytes);
+  const parts = encodeNiftiParts(volume, options);
+  writeFileAtomic(path, path.endsWith(".gz") ? await gzipMembers(parts, options.gzipLevel ?? 6) : parts);
 }
 
 /** Affine as stored in the header for comparison in tests: the sform, rounded to float32. */
