@@ -19,7 +19,10 @@ try {
   const buffer = own
     ? (out.buffer as ArrayBuffer)
     : out.buffer.slice(out.byteOffset, out.byteOffset + out.byteLength);
-  parentPort!.postMessage({ ok: true, buffer, length: out.byteLength }, [buffer as ArrayBuffer]);
+  const inflatedAtMs = performance.timeOrigin + performance.now();
+  parentPort!.postMessage({ ok: true, buffer, length: out.byteLength, inflatedAtMs }, [
+    buffer as ArrayBuffer,
+  ]);
 } catch (err) {
   const e = err as NodeJS.ErrnoException;
   parentPort!.postMessage({ ok: false, name: e.name, code: e.code, message: e.message });

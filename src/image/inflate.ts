@@ -12,11 +12,13 @@ import { workerScript } from "../common/workers.js";
  * @param input - compressed bytes; its memory is handed to the worker (do not use it after)
  * @param limits - maxOutputLength: refuse to inflate beyond this many bytes; chunkSize: zlib's
  *   output chunk (one chunk as large as the expected output avoids joining chunks at the end)
+ * @returns the bytes, and when the worker finished inflating them (epoch ms: the main thread may
+ *   take the message later, when it is busy)
  */
 export function inflateInWorker(
   input: Uint8Array,
   limits: { maxOutputLength: number; chunkSize?: number },
-): Promise<Uint8Array> {
+): Promise<{ bytes: Uint8Array; inflatedAtMs: number }> {
   const whole = input.byteOffset === 0 && input.byteLength === input.buffer.byteLength;
   const buffer = whole
     ? (input.buffer as ArrayBuffer)
@@ -33,12 +35,13 @@ export function inflateInWorker(
         ok: boolean;
         buffer?: ArrayBuffer;
         length?: number;
+        inflatedAtMs?: number;
         name?: string;
         code?: string;
         message?: string;
       }) => {
         settled = true;
-        if (m.ok) resolve(new Uint8Array(m.buffer!, 0, m.length));
+        if (m.ok) resolve({ bytes: new Uint8Array(m.buffer!, 0, m.length), inflatedAtMs: m.inflatedAtMs! });
         else {
           const err = m.name === "RangeError" ? new RangeError(m.message) : new Error(m.message);
           Object.assign(err, { code: m.code });

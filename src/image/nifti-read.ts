@@ -70,6 +70,12 @@ export interface NiftiImage {
   header: NiftiHeaderInfo;
 }
 
+/** readNiftiAsync's result: the image and when its voxels were in memory. */
+export interface NiftiImageRead extends NiftiImage {
+  /** Epoch ms (performance.timeOrigin + now) at which the voxels were ready: the end of inflation. */
+  readyAtMs: number;
+}
+
 const HEADER_PROBE_BYTES = 65536;
 const GZIP_MARGIN_BYTES = 1 << 20;
 /** Compressed files from this size on are inflated on a worker thread of their own. */
@@ -140,7 +146,7 @@ export function parseNifti(bytes: Uint8Array, name: string, options: ReadNiftiOp
  * images can be read at once and the main thread can work meanwhile. Same checks and result as
  * readNifti.
  */
-export async function readNiftiAsync(path: string, options: ReadNiftiOptions = {}): Promise<NiftiImage> {
+export async function readNiftiAsync(path: string, options: ReadNiftiOptions = {}): Promise<NiftiImageRead> {
   if (!existsSync(path)) throw new CoxaError("FILE_MISSING", "file does not exist", path);
   let raw: Buffer;
   try {
@@ -157,18 +163,21 @@ export async function readNiftiAsync(path: string, options: ReadNiftiOptions = {
   }
   const plan = planRead(raw, path, options);
   let whole: Uint8Array = raw;
+  let readyAtMs: number | undefined;
   if (plan.gz) {
     try {
       const limits = inflateLimits(plan.needed);
-      whole =
-        raw.length >= WORKER_INFLATE_BYTES
-          ? await inflateInWorker(raw, limits)
-          : await gunzipAsync(raw, limits);
+      if (raw.length >= WORKER_INFLATE_BYTES) {
+        const r = await inflateInWorker(raw, limits);
+        whole = r.bytes;
+        readyAtMs = r.inflatedAtMs;
+      } else whole = await gunzipAsync(raw, limits);
     } catch (err) {
       throw inflateError(err, plan.needed, path);
     }
   }
-  return finishRead(whole, plan, path, options);
+  const image = finishRead(whole, plan, path, options);
+  return { ...image, readyAtMs: readyAtMs ?? performance.timeOrigin + performance.now() };
 }
 
 interface ReadPlan {

@@ -3,7 +3,7 @@
  * axis, at least two different finite intensities. Shared by every command that registers.
  */
 import { CoxaError } from "../common/errors.js";
-import { type NiftiImage, readNiftiAsync } from "./nifti-read.js";
+import { type NiftiImageRead, readNiftiAsync } from "./nifti-read.js";
 
 /**
  * Read and check a registrable 3-D image.
@@ -11,7 +11,7 @@ import { type NiftiImage, readNiftiAsync } from "./nifti-read.js";
  * @throws CoxaError from readNifti, BAD_DIMS for 2-D or 4-D images, BAD_INPUT for an image with
  *   no finite or only one intensity (each naming the file)
  */
-export async function readVolume3d(path: string): Promise<NiftiImage> {
+export async function readVolume3d(path: string): Promise<NiftiImageRead> {
   const img = await readNiftiAsync(path);
   const { shape, frames } = img.header;
   if (shape.length < 3 || shape.slice(0, 3).some((n) => n < 2)) {

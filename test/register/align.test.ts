@@ -151,6 +151,11 @@ describe("coxa align on the demo phantom", () => {
     expect(summary.metric.name).toBe("mi");
     expect(summary.metric.final).toBeGreaterThan(summary.metric.start);
     expect(summary.timing_s.total).toBeGreaterThan(0);
+    // The registration's elapsed share (both images in memory -> forward answer) holds at least
+    // the search and the levels, which start only then, and fits inside the whole run.
+    const t = summary.timing_s;
+    expect(t.register_elapsed).toBeGreaterThanOrEqual(t.register_search + t.register_optimise - 0.005);
+    expect(t.register_elapsed).toBeLessThan(t.total);
     expect(summary.inverse_consistency_mm).toBeLessThan(1);
     expect(summary.landmarks).toHaveProperty("fre_mm");
     expect(summary.landmarks).toHaveProperty("predicted_tre_mm");
