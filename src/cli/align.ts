@@ -84,9 +84,10 @@ export function alignCommand(ctx: CliContext): Command {
         .default(REGISTER_DEFAULTS.seed),
     )
     .addOption(
-      new Option("--threads <n>", "worker threads for resampling (default: all cores)").argParser(
-        integerIn(1, 256),
-      ),
+      new Option(
+        "--threads <n>",
+        "threads for the metric and resampling (default: all cores for images of 8 million voxels or more, else 1)",
+      ).argParser(integerIn(1, 256)),
     )
     .addOption(
       new Option("--tre-pass-mm <mm>", "mean landmark TRE that still passes")

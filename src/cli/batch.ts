@@ -164,7 +164,7 @@ export function batchCommand(ctx: CliContext): Command {
     .addOption(
       new Option(
         "--threads <n>",
-        "threads inside each case (default: 1 with --jobs > 1, else all cores)",
+        "threads inside each case (default: 1 with --jobs > 1, else as coxa align chooses)",
       ).argParser(integerIn(1, 256)),
     )
     .option("--json", "print the cohort rows and counts as JSON only")

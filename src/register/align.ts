@@ -15,7 +15,7 @@ import { CoxaError } from "../common/errors.js";
 import { sha256File } from "../common/hash.js";
 import type { ProgressFn } from "../common/progress.js";
 import { softwareInfo } from "../common/version.js";
-import { defaultThreads } from "../common/workers.js";
+import { threadsFor } from "../common/workers.js";
 import { evaluateLandmarks, landmarkEvaluationToJson } from "../geometry/landmark-evaluation.js";
 import { type LandmarkPairs, pairLandmarks, readLandmarks } from "../geometry/landmarks.js";
 import { inverse, type Mat4, toRows, transformPoint } from "../geometry/mat4.js";
@@ -67,7 +67,10 @@ export interface AlignOptions {
   movingLabels?: string;
   init?: InitMethod;
   seed?: number;
-  /** Worker threads for resampling (default: all cores). */
+  /**
+   * Threads for the metric helper and the resampling (default: all cores for an image of
+   * PARALLEL_MIN_VOXELS or more, else 1; see threadsFor).
+   */
   threads?: number;
   /** Quality-gate thresholds (defaults in quality.ts). */
   thresholds?: Partial<QualityThresholds>;
@@ -193,7 +196,6 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
     movingMaskName: options.movingMask,
     init: options.init,
     seed,
-    threads: options.threads ?? defaultThreads(),
     onProgress: progress,
   };
   // The image read first is prepared (pyramid, masks) while the other is still inflating.
@@ -249,11 +251,12 @@ export async function alignPair(options: AlignOptions): Promise<AlignResult> {
   }
   const [fixedSha, movingSha] = await shaRead;
   timing.read = seconds(t0);
+  const fixed = fixedImage.volume;
+  const moving = movingImage.volume;
+  regOptions.threads = options.threads ?? threadsFor(Math.max(fixed.count, moving.count));
   // Start the resampling threads now; they are ready when registration ends.
-  const pool = createResamplePool(options.threads);
+  const pool = createResamplePool(regOptions.threads);
   try {
-    const fixed = fixedImage.volume;
-    const moving = movingImage.volume;
     // ---- Register ----
     t0 = performance.now();
     // The resampling of the moving image needs only the forward answer: it starts on the pool's
