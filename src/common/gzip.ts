@@ -7,7 +7,19 @@
 import { promisify } from "node:util";
 import { gzip } from "node:zlib";
 
-const gzipAsync = promisify(gzip) as (buf: Uint8Array, opts: { level: number }) => Promise<Buffer>;
+const gzipAsync = promisify(gzip) as (
+  buf: Uint8Array,
+  opts: { level: number; chunkSize: number },
+) => Promise<Buffer>;
+
+/**
+ * zlib output chunk for compressing `n` bytes: room for the worst case (deflate's stored blocks
+ * add 5 bytes per 16 KiB, gzip 18 bytes of header and trailer), so that each member comes out
+ * in one chunk and is not joined from 16 KiB pieces afterwards.
+ */
+function outputChunk(n: number): number {
+  return Math.max(64, n + (n >>> 9) + 1024);
+}
 
 /** Chunk size: large enough that members add negligible overhead (~20 bytes each). */
 export const GZIP_CHUNK_BYTES = 8 * 1024 * 1024;
@@ -29,7 +41,8 @@ export async function gzipMembers(
   const total = pieces.reduce((s, p) => s + p.length, 0);
   const parts: Promise<Buffer>[] = [];
   for (let off = 0; off < total || off === 0; off += chunkBytes) {
-    parts.push(gzipAsync(bytesBetween(pieces, off, Math.min(total, off + chunkBytes)), { level }));
+    const bytes = bytesBetween(pieces, off, Math.min(total, off + chunkBytes));
+    parts.push(gzipAsync(bytes, { level, chunkSize: outputChunk(bytes.length) }));
     if (total === 0) break;
   }
   return Promise.all(parts);
