@@ -32,6 +32,9 @@ export interface WriteNiftiOptions {
   sclInter?: number;
 }
 
+/** NIfTI files here are little-endian; a typed array's own bytes are that only on such a host. */
+const LITTLE_ENDIAN_HOST = new Uint8Array(new Uint16Array([1]).buffer)[0] === 1;
+
 /** Columns deviating from orthogonality by more than this count as shear (no qform). */
 const SHEAR_TOLERANCE = 1e-6;
 
@@ -144,9 +147,6 @@ export function encodeNiftiParts(volume: Volume, options: WriteNiftiOptions = {}
   }
   return [new Uint8Array(buffer)];
 }
-
-/** NIfTI files here are little-endian; a typed array's own bytes are that only on such a host. */
-const LITTLE_ENDIAN_HOST = new Uint8Array(new Uint16Array([1]).buffer)[0] === 1;
 
 function storeFrame(
   out: VoxelArray,
